@@ -9,7 +9,6 @@ STAMP  := $(VENV)/.installed
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
-	$(PY) -m pip install --quiet --upgrade pip
 	$(PY) -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 

@@ -1,0 +1,175 @@
+"""Command line: `auditor check`, `auditor demo`. The only module that prints or writes files.
+
+Exit codes: 0 ok; 1 a problem with the data, file or options (one line on stderr); 2 usage;
+3 unexpected internal error (traceback only with --debug); 130 interrupted.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+import warnings
+from pathlib import Path
+
+from auditor import __version__
+
+EXIT_OK, EXIT_DATA, EXIT_USAGE, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that raises instead of exiting, so main() can return the usage code."""
+
+    def error(self, message):  # noqa: D401 - argparse API
+        self.print_usage(sys.stderr)
+        print(f"{self.prog}: error: {message}", file=sys.stderr)
+        raise _UsageError(message)
+
+
+class _UsageError(Exception):
+    pass
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="auditor",
+        description="Screen a comparison of groups and report parametric and rank-based effect"
+                    " sizes side by side, with intervals.",
+    )
+    parser.add_argument("--version", action="version", version=f"auditor {__version__}")
+    parser.add_argument("--debug", action="store_true",
+                        help="show the full traceback if an internal error occurs")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    check = sub.add_parser(
+        "check", help="audit one outcome compared between two groups",
+        description="Audit one outcome compared between two independent groups: diagnostics,"
+                    " effect sizes with analytic and bootstrap intervals, data accounting.",
+        epilog="Example: auditor check trial.csv --outcome minutes --group arm"
+               " --groups coached,usual --json -",
+    )
+    check.add_argument("file", help="data file: .csv, .tsv (delimiter detected) or .xlsx")
+    check.add_argument("--outcome", required=True, metavar="COLUMN",
+                       help="column holding the numeric outcome")
+    check.add_argument("--group", required=True, metavar="COLUMN",
+                       help="column holding the group labels (long format)")
+    check.add_argument("--groups", metavar="A,B",
+                       help="the two levels to compare, in order; A is compared with B"
+                            " (default: the two levels in order of first appearance)")
+    check.add_argument("--level", type=float, default=0.95,
+                       help="confidence level of every interval (default 0.95)")
+    check.add_argument("--reference", metavar="LABEL",
+                       help="group whose SD scales Glass's delta (default: B)")
+    check.add_argument("--boot", type=int, default=2000, metavar="N",
+                       help="bootstrap resamples (default 2000)")
+    check.add_argument("--seed", type=int, default=None,
+                       help="seed of the bootstrap's random generator (default: a fixed seed,"
+                            " reported in the output)")
+    check.add_argument("--json", metavar="PATH",
+                       help="write the JSON document to PATH ('-' for standard output)")
+    check.add_argument("--out", metavar="DIR", help="folder to write audit.json into")
+    check.add_argument("--quiet", action="store_true", help="do not print the summary")
+    check.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                       help="show the full traceback if an internal error occurs")
+    check.set_defaults(handler=_check)
+
+    demo = sub.add_parser("demo", help="audit the bundled demo data",
+                          description="Audit the bundled demo data set and write the results.")
+    demo.add_argument("--out", metavar="DIR", default="reports/demo",
+                      help="folder for the demo's outputs (default reports/demo)")
+    demo.set_defaults(handler=_demo)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except _UsageError:
+        return EXIT_USAGE
+    except SystemExit as exc:  # --help and --version
+        return int(exc.code or 0)
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_USAGE
+    debug = getattr(args, "debug", False)
+    try:
+        from auditor.errors import AuditError
+    except Exception:  # pragma: no cover
+        raise
+    try:
+        return args.handler(args)
+    except AuditError as exc:
+        print(f"auditor: error: {exc}", file=sys.stderr)
+        return EXIT_DATA
+    except KeyboardInterrupt:
+        print("auditor: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except BrokenPipeError:
+        return EXIT_OK
+    except Exception as exc:  # noqa: BLE001 - the one place unexpected errors are caught
+        if debug:
+            traceback.print_exc()
+        print(f"auditor: internal error ({type(exc).__name__}: {exc}). This is a bug; please"
+              " report it with the command you ran" + ("" if debug else
+              " (add --debug to see the traceback)") + ".", file=sys.stderr)
+        return EXIT_INTERNAL
+
+
+def _progress_printer():
+    if not sys.stderr.isatty():
+        return None
+
+    def show(done: int, total: int) -> None:
+        print(f"\rbootstrap {done}/{total}", end="" if done < total else "\n",
+              file=sys.stderr, flush=True)
+
+    return show
+
+
+def _write_text(path: Path, text: str) -> None:
+    from auditor.errors import AuditError
+
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise AuditError(f"{path}: cannot write ({exc.strerror or exc})") from None
+
+
+def _check(args) -> int:
+    from auditor.pipeline import DEFAULT_SEED, audit
+    from auditor.render import terminal_summary, to_json
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # every condition is reported in the result itself
+        result = audit(
+            args.file, outcome=args.outcome, group=args.group, groups=args.groups,
+            level=args.level, resamples=args.boot,
+            seed=DEFAULT_SEED if args.seed is None else args.seed,
+            reference=args.reference, progress=_progress_printer(),
+        )
+    document = to_json(result)
+    if args.out:
+        _write_text(Path(args.out) / "audit.json", document)
+    if args.json == "-":
+        sys.stdout.write(document)
+        if not args.quiet:
+            sys.stderr.write(terminal_summary(result))
+    else:
+        if args.json:
+            _write_text(Path(args.json), document)
+        if not args.quiet:
+            sys.stdout.write(terminal_summary(result))
+    return EXIT_OK
+
+
+def _demo(args) -> int:
+    from auditor.demo import run_demo
+
+    return run_demo(Path(args.out), echo=lambda line: print(line))
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
+

@@ -1,0 +1,221 @@
+"""Screening diagnostics: descriptives, normality, spread, ties and outliers.
+
+Each function takes plain arrays and returns a frozen result. Where a test is undefined for the
+data (too few values, zero spread) its fields are None and a note says why; no warning escapes
+from scipy.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+
+import numpy as np
+from scipy import special, stats
+
+from auditor.results import GroupSummary, NormalTheoryCheck, Normality, Outliers, Spread, Ties
+
+SHAPIRO_MAX_N = 5000
+DAGOSTINO_MIN_N = 20
+DISCRETE_MAX_DISTINCT = 10  # common practice: ten or fewer distinct values reads as a rating scale
+MODIFIED_Z_CUTOFF = 3.5  # Iglewicz & Hoaglin (1993), p. 11
+
+
+def _quiet(fn, *args, **kwargs):
+    """Call a scipy routine with its warnings and floating-point chatter silenced."""
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        return fn(*args, **kwargs)
+
+
+def _finite(x: float) -> float | None:
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def describe(label: str, x: np.ndarray, missing: int = 0) -> GroupSummary:
+    """n, mean, SD (n - 1 denominator), median, quartiles (linear interpolation, type 7), range."""
+    q1, med, q3 = np.percentile(x, [25, 50, 75])
+    return GroupSummary(
+        label=label, n=int(x.size), missing=int(missing), mean=float(np.mean(x)),
+        sd=float(np.std(x, ddof=1)) if x.size > 1 else math.nan,
+        median=float(med), q1=float(q1), q3=float(q3), min=float(np.min(x)), max=float(np.max(x)),
+    )
+
+
+def skewness_se(n: int) -> float:
+    """Standard error of G1: sqrt(6n(n-1) / ((n-2)(n+1)(n+3))) (Joanes & Gill 1998, eq. for SE(G1))."""
+    if n < 3:
+        return math.nan
+    return math.sqrt(6.0 * n * (n - 1) / ((n - 2) * (n + 1) * (n + 3)))
+
+
+def kurtosis_se(n: int) -> float:
+    """Standard error of G2: 2 SE(G1) sqrt((n^2 - 1) / ((n - 3)(n + 5))) (Joanes & Gill 1998)."""
+    if n < 4:
+        return math.nan
+    return 2.0 * skewness_se(n) * math.sqrt((n * n - 1.0) / ((n - 3) * (n + 5)))
+
+
+def anderson_darling(x: np.ndarray) -> tuple[float, float]:
+    """Anderson-Darling A2 for normality with mean and SD estimated, and its approximate p.
+
+    A2 = -n - (1/n) sum_i (2i - 1) [ln Phi(z_(i)) + ln(1 - Phi(z_(n+1-i)))], z from the sample
+    mean and SD (n - 1). The p-value uses the modified statistic A2* = A2 (1 + 0.75/n + 2.25/n^2)
+    and the piecewise formulas of D'Agostino & Stephens (1986, Table 4.9).
+    """
+    n = x.size
+    z = np.sort((x - np.mean(x)) / np.std(x, ddof=1))
+    i = np.arange(1, n + 1)
+    a2 = -n - np.sum((2 * i - 1) * (special.log_ndtr(z) + special.log_ndtr(-z[::-1]))) / n
+    aa = a2 * (1 + 0.75 / n + 2.25 / n**2)
+    if aa < 0.2:
+        p = 1 - math.exp(-13.436 + 101.14 * aa - 223.73 * aa**2)
+    elif aa < 0.34:
+        p = 1 - math.exp(-8.318 + 42.796 * aa - 59.938 * aa**2)
+    elif aa < 0.6:
+        p = math.exp(0.9177 - 4.279 * aa - 1.38 * aa**2)
+    else:
+        p = math.exp(1.2937 - 5.709 * aa + 0.0186 * aa**2)
+    return float(a2), float(min(max(p, 0.0), 1.0))
+
+
+def normality(label: str, x: np.ndarray) -> Normality:
+    """Shapiro-Wilk (3 <= n <= 5000), D'Agostino-Pearson K2 (n >= 20), Anderson-Darling, G1, G2.
+
+    G1 and G2 are the bias-corrected sample skewness and excess kurtosis (Joanes & Gill 1998,
+    'G' estimators; scipy.stats.skew/kurtosis with bias=False).
+    """
+    n = int(x.size)
+    notes: list[str] = []
+    constant = n > 0 and bool(np.all(x == x[0]))
+    sw_w = sw_p = k2 = k2_p = a2 = a2_p = g1 = g2 = None
+    if constant:
+        notes.append("all values are equal: normality tests and shape statistics are undefined")
+    else:
+        if 3 <= n <= SHAPIRO_MAX_N:
+            res = _quiet(stats.shapiro, x)
+            sw_w, sw_p = _finite(res.statistic), _finite(res.pvalue)
+        elif n > SHAPIRO_MAX_N:
+            notes.append(f"Shapiro-Wilk is not run above n = {SHAPIRO_MAX_N}; rely on the"
+                         " other tests and on skewness and kurtosis")
+        else:
+            notes.append("Shapiro-Wilk needs at least 3 values")
+        if n >= DAGOSTINO_MIN_N:
+            res = _quiet(stats.normaltest, x)
+            k2, k2_p = _finite(res.statistic), _finite(res.pvalue)
+        else:
+            notes.append(f"D'Agostino-Pearson needs at least {DAGOSTINO_MIN_N} values")
+        if n >= 3:
+            a2, a2_p = anderson_darling(x)
+        if n >= 3:
+            g1 = _finite(_quiet(stats.skew, x, bias=False))
+        if n >= 4:
+            g2 = _finite(_quiet(stats.kurtosis, x, bias=False))
+    return Normality(
+        label=label, n=n, shapiro_w=sw_w, shapiro_p=sw_p, dagostino_k2=k2, dagostino_p=k2_p,
+        anderson_a2=a2, anderson_p=a2_p, skewness=g1, skewness_se=_finite(skewness_se(n)),
+        excess_kurtosis=g2, kurtosis_se=_finite(kurtosis_se(n)), notes=tuple(notes),
+    )
+
+
+def _ratio(x: float, y: float) -> float | None:
+    big, small = max(x, y), min(x, y)
+    if small <= 0:
+        return None
+    return big / small
+
+
+def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
+    """Compare the spread of two groups.
+
+    SD ratio (larger over smaller), IQR and MAD ratios (robust), Levene's test centred on means,
+    the Brown-Forsythe variant centred on medians, and Fligner-Killeen (scipy.stats.levene and
+    scipy.stats.fligner). Ratios are None when the smaller spread is zero.
+    """
+    notes: list[str] = []
+    sd = (float(np.std(a, ddof=1)), float(np.std(b, ddof=1)))
+    iqr = (float(stats.iqr(a)), float(stats.iqr(b)))
+    mad = (float(stats.median_abs_deviation(a)), float(stats.median_abs_deviation(b)))
+    if min(sd) == 0:
+        notes.append("a group has zero spread: tests of equal spread are undefined")
+        lev = bf = fl = (None, None)
+    else:
+        r1 = _quiet(stats.levene, a, b, center="mean")
+        r2 = _quiet(stats.levene, a, b, center="median")
+        r3 = _quiet(stats.fligner, a, b)
+        lev = (_finite(r1.statistic), _finite(r1.pvalue))
+        bf = (_finite(r2.statistic), _finite(r2.pvalue))
+        fl = (_finite(r3.statistic), _finite(r3.pvalue))
+    larger = 0 if sd[0] >= sd[1] else 1
+    return Spread(
+        sd_ratio=_ratio(*sd), larger_sd_group=labels[larger], iqr_ratio=_ratio(*iqr),
+        mad_ratio=_ratio(*mad), levene_w=lev[0], levene_p=lev[1], brown_forsythe_w=bf[0],
+        brown_forsythe_p=bf[1], fligner_x2=fl[0], fligner_p=fl[1],
+        n_ratio=max(a.size, b.size) / min(a.size, b.size),
+        smaller_group_has_larger_sd=bool(a.size != b.size and sd[0] != sd[1]
+                                         and (a.size < b.size) == (sd[0] > sd[1])),
+        notes=tuple(notes),
+    )
+
+
+def ties(label: str, x: np.ndarray) -> Ties:
+    """Ties in x: share of values that equal another, distinct values, largest block, and the
+    tie correction factor 1 - sum(t^3 - t) / (N^3 - N) used by rank tests (scipy.stats.tiecorrect).
+    """
+    _, counts = np.unique(x, return_counts=True)
+    n = int(x.size)
+    tied = int(counts[counts > 1].sum())
+    t = counts.astype(float)
+    correction = 1.0 - float(np.sum(t**3 - t)) / (float(n) ** 3 - n) if n > 1 else 1.0
+    return Ties(
+        label=label, n=n, tie_fraction=tied / n if n else 0.0, distinct_values=int(counts.size),
+        largest_tie_block=int(counts.max()) if n else 0, tie_correction=correction,
+        looks_discrete=bool(counts.size <= DISCRETE_MAX_DISTINCT),
+    )
+
+
+def outliers(label: str, x: np.ndarray, rows: np.ndarray, floor: float, ceiling: float) -> Outliers:
+    """Cases beyond Tukey's fences (Q1 - k IQR, Q3 + k IQR for k = 1.5 and 3; quartiles by linear
+    interpolation) and with |modified z| > 3.5, M = 0.6745 (x - median) / MAD (Iglewicz & Hoaglin
+    1993). Cases are named by file line. Floor and ceiling shares are the shares of this group at
+    the pooled minimum and maximum.
+    """
+    q1, q3 = np.percentile(x, [25, 75])
+    iqr = q3 - q1
+    lo15, hi15 = q1 - 1.5 * iqr, q3 + 1.5 * iqr
+    lo3, hi3 = q1 - 3 * iqr, q3 + 3 * iqr
+    beyond15 = (x < lo15) | (x > hi15)
+    beyond3 = (x < lo3) | (x > hi3)
+    med = np.median(x)
+    mad = np.median(np.abs(x - med))
+    if mad > 0:
+        mz = np.abs(0.6745 * (x - med) / mad) > MODIFIED_Z_CUTOFF
+    else:
+        mz = np.zeros(x.size, dtype=bool)
+    any_flag = beyond15 | mz
+
+    def lines(mask):
+        return tuple(int(r) for r in np.sort(rows[mask]))
+
+    return Outliers(
+        label=label, rows=lines(any_flag), beyond_1_5_iqr_rows=lines(beyond15),
+        beyond_3_iqr_rows=lines(beyond3), modified_z_rows=lines(mz), lower_fence=float(lo15),
+        upper_fence=float(hi15), floor_share=float(np.mean(x == floor)),
+        ceiling_share=float(np.mean(x == ceiling)),
+    )
+
+
+def normal_theory_check(d: float | None, observed_a: float | None) -> NormalTheoryCheck:
+    """Compare the overlap the normal model implies with the overlap observed.
+
+    Under normality with equal variances, P(X_A > X_B) = Phi(d / sqrt(2)) (McGraw & Wong 1992,
+    common-language effect size); conversely d = sqrt(2) Phi^-1(A). A large gap says d misreads
+    the overlap of these data.
+    """
+    implied = None if d is None else float(special.ndtr(d / math.sqrt(2.0)))
+    back = None
+    if observed_a is not None and 0.0 < observed_a < 1.0:
+        back = float(math.sqrt(2.0) * special.ndtri(observed_a))
+    gap = None if implied is None or observed_a is None else observed_a - implied
+    return NormalTheoryCheck(d, implied, observed_a, gap, back)

@@ -1,0 +1,319 @@
+"""The dominance family: probability of superiority, Cliff's delta, rank-biserial correlation,
+r = Z / sqrt(N), and the Hodges-Lehmann shift, with distribution-free intervals.
+
+Direction is A relative to B. A = P(X_A > X_B) + P(X_A = X_B) / 2, so swapping the groups maps
+A to 1 - A and negates delta, the rank-biserial r, r = Z / sqrt(N) and the shift:
+
+>>> import numpy as np
+>>> a, b = np.array([3., 5, 7, 9]), np.array([1., 2, 5, 6])
+>>> prob_superiority_values(a, b), prob_superiority_values(b, a)
+(0.78125, 0.21875)
+
+None of these indices changes when both groups go through the same strictly increasing
+transformation (except the Hodges-Lehmann shift, which is in the outcome's units).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+from auditor.parametric import Estimate
+from auditor.results import Interval
+
+EXACT_MAX_PAIRS = 2500  # exact Mann-Whitney null distribution up to n_A n_B = 2500, no ties
+
+
+# ------------------------------------------------------------------ ranks along the last axis
+
+
+def midranks(x: np.ndarray) -> np.ndarray:
+    """Mid-ranks (ties get the average rank) along the last axis (scipy.stats.rankdata)."""
+    return stats.rankdata(x, axis=-1)
+
+
+def tie_sizes(x: np.ndarray) -> np.ndarray:
+    """For each value along the last axis, the size of its tie block (1 when untied)."""
+    order = np.argsort(x, axis=-1, kind="stable")
+    s = np.take_along_axis(x, order, axis=-1)
+    n = s.shape[-1]
+    pos = np.broadcast_to(np.arange(n), s.shape)
+    new = np.ones(s.shape, dtype=bool)
+    new[..., 1:] = s[..., 1:] != s[..., :-1]
+    start = np.maximum.accumulate(np.where(new, pos, 0), axis=-1)
+    last = np.ones(s.shape, dtype=bool)
+    last[..., :-1] = new[..., 1:]
+    end = np.flip(np.minimum.accumulate(np.flip(np.where(last, pos, n), axis=-1), axis=-1), axis=-1)
+    sizes_sorted = end - start + 1
+    out = np.empty_like(sizes_sorted)
+    np.put_along_axis(out, order, sizes_sorted, axis=-1)
+    return out
+
+
+def superiority_count_values(a, b):
+    """U_A = #(a > b) + #(a = b)/2 over all pairs, from the rank sum of A in the pooled sample:
+    U_A = R_A - n_A (n_A + 1)/2 (Mann & Whitney 1947)."""
+    na = a.shape[-1]
+    ranks = midranks(np.concatenate([a, b], axis=-1))
+    return np.sum(ranks[..., :na], axis=-1) - na * (na + 1) / 2
+
+
+def prob_superiority_values(a, b):
+    """A = U_A / (n_A n_B) = P(X_A > X_B) + P(X_A = X_B)/2 (Vargha & Delaney 2000, eq. 14)."""
+    return superiority_count_values(a, b) / (a.shape[-1] * b.shape[-1])
+
+
+def cliff_delta_values(a, b):
+    """delta = P(X_A > X_B) - P(X_A < X_B) = 2A - 1 (Cliff 1993)."""
+    return 2.0 * prob_superiority_values(a, b) - 1.0
+
+
+def rank_biserial_values(a, b):
+    """Kerby's (2014) simple difference: (favourable pairs - unfavourable pairs) / all pairs.
+    For two independent groups it equals Cliff's delta."""
+    return cliff_delta_values(a, b)
+
+
+def mann_whitney_z_values(a, b):
+    """z = (U_A - n_A n_B / 2) / sigma_U with the tie-corrected
+    sigma_U^2 = n_A n_B / 12 [(N + 1) - sum(t^3 - t) / (N (N - 1))], no continuity correction
+    (Lehmann 1975, eq. 1.52 for the tie correction)."""
+    na, nb = a.shape[-1], b.shape[-1]
+    n = na + nb
+    pooled = np.concatenate([a, b], axis=-1)
+    t = tie_sizes(pooled).astype(float)
+    tie_term = np.sum(t * t - 1.0, axis=-1)  # sum over values of (t^2 - 1) = sum over blocks (t^3 - t)
+    var = na * nb / 12.0 * ((n + 1) - tie_term / (n * (n - 1)))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (superiority_count_values(a, b) - na * nb / 2.0) / np.sqrt(var)
+
+
+def r_from_z_values(a, b):
+    """r = z / sqrt(N), N = n_A + n_B (Rosenthal 1991, p. 19)."""
+    return mann_whitney_z_values(a, b) / math.sqrt(a.shape[-1] + b.shape[-1])
+
+
+# ------------------------------------------------------------------ Hodges-Lehmann shift
+
+
+def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) -> float:
+    """The k-th smallest (1-based) of the n_A n_B differences a_i - b_j, without forming them all.
+
+    Bisection on the value keeps count(d <= lo) < k <= count(d <= hi), where counting takes
+    O(n log n) with binary search on the sorted samples; once few candidates lie in (lo, hi] they
+    are listed and the answer is picked among them. Memory is O(n_A + n_B + candidates).
+    """
+    a, b = a_sorted, b_sorted
+    m = b.size
+
+    def count_le(t: float) -> int:  # number of pairs with a_i - b_j <= t, i.e. b_j >= a_i - t
+        return int(m * a.size - np.searchsorted(b, a - t, side="left").sum())
+
+    lo = float(np.nextafter(a[0] - b[-1], -np.inf))
+    hi = float(a[-1] - b[0])
+    c_lo, c_hi = 0, a.size * m
+    budget = 4 * (a.size + m)
+    while c_hi - c_lo > budget:
+        mid = lo + (hi - lo) / 2
+        if not lo < mid < hi:
+            return hi  # nothing representable strictly between: every candidate equals hi
+        c_mid = count_le(mid)
+        if c_mid >= k:
+            hi, c_hi = mid, c_mid
+        else:
+            lo, c_lo = mid, c_mid
+    left = np.searchsorted(b, a - hi, side="left")
+    right = np.searchsorted(b, a - lo, side="left")
+    parts = [a[i] - b[left[i]:right[i]] for i in np.flatnonzero(right > left)]
+    candidates = np.sort(np.concatenate(parts)) if parts else np.array([hi])
+    return float(candidates[k - c_lo - 1])
+
+
+def pairwise_median(a_sorted: np.ndarray, b_sorted: np.ndarray) -> float:
+    """Median of all a_i - b_j (the Hodges-Lehmann two-sample shift, Hodges & Lehmann 1963)."""
+    total = a_sorted.size * b_sorted.size
+    if total % 2:
+        return kth_pairwise_difference(a_sorted, b_sorted, total // 2 + 1)
+    return 0.5 * (kth_pairwise_difference(a_sorted, b_sorted, total // 2)
+                  + kth_pairwise_difference(a_sorted, b_sorted, total // 2 + 1))
+
+
+def hodges_lehmann_values(a, b):
+    """Hodges-Lehmann shift along the last axis (median of all pairwise differences A - B)."""
+    if a.ndim == 1:
+        return pairwise_median(np.sort(a), np.sort(b))
+    lead = a.shape[:-1]
+    a2 = np.sort(a.reshape(-1, a.shape[-1]), axis=-1)
+    b2 = np.sort(b.reshape(-1, b.shape[-1]), axis=-1)
+    pairs = a2.shape[-1] * b2.shape[-1]
+    if pairs <= EXACT_MAX_PAIRS:  # small samples: all pairs, a bounded number of rows at a time
+        out = np.empty(a2.shape[0])
+        step = max(1, 4_000_000 // pairs)
+        for s in range(0, a2.shape[0], step):
+            diffs = a2[s:s + step, :, None] - b2[s:s + step, None, :]
+            out[s:s + step] = np.median(diffs.reshape(diffs.shape[0], -1), axis=-1)
+    else:
+        out = np.array([pairwise_median(x, y) for x, y in zip(a2, b2)])
+    return out.reshape(lead)
+
+
+def mann_whitney_null_pmf(na: int, nb: int) -> np.ndarray:
+    """Exact null distribution of U (no ties): P(U = u), u = 0..n_A n_B.
+
+    Uses the generating function prod_{i=1}^{n_A} (1 - q^(n_B + i)) / (1 - q^i) divided by
+    C(n_A + n_B, n_A) (Mann & Whitney 1947), scaled step by step to stay a distribution.
+    """
+    size = na * nb + 1
+    p = np.zeros(size)
+    p[0] = 1.0
+    for i in range(1, na + 1):
+        q = p.copy()
+        shift = nb + i
+        if shift < size:
+            q[shift:] -= p[:size - shift]
+        r = np.empty_like(q)
+        for start in range(i):
+            r[start::i] = np.cumsum(q[start::i])
+        p = r * (i / (nb + i))
+    p = np.clip(p, 0.0, None)
+    return p / p.sum()
+
+
+@dataclass(frozen=True)
+class RankOrder:
+    """Order-statistic index k for the interval [D_(k), D_(n_A n_B + 1 - k)] and how it was found."""
+
+    k: int
+    method: str
+    achieved_level: float | None
+
+
+def shift_interval_order(na: int, nb: int, level: float, tie_correction: float) -> RankOrder:
+    """Largest k with P(U <= k - 1) <= (1 - level)/2, so that [D_(k), D_(mn+1-k)] covers the shift
+    with probability >= level for continuous data (Lehmann 1975, sec. 2.6; Bauer 1972).
+
+    Exact null distribution when n_A n_B <= 2500 and there are no ties; otherwise the normal
+    approximation k = floor(mn/2 - z sqrt(var U)) with the tie-corrected variance.
+    """
+    alpha2 = (1 - level) / 2
+    mn = na * nb
+    if mn <= EXACT_MAX_PAIRS and tie_correction == 1.0:
+        cdf = np.cumsum(mann_whitney_null_pmf(na, nb))
+        below = np.flatnonzero(cdf <= alpha2 + 1e-12)
+        k = int(below[-1]) + 2 if below.size else 1
+        achieved = 1 - 2 * float(cdf[k - 2]) if k >= 2 else 1.0
+        return RankOrder(max(k, 1), "exact", achieved)
+    z = stats.norm.ppf(1 - alpha2)
+    n = na + nb
+    var = mn / 12.0 * (n + 1) * tie_correction
+    k = int(math.floor(mn / 2.0 - z * math.sqrt(var)))
+    return RankOrder(max(k, 1), "normal_approximation", None)
+
+
+def hodges_lehmann(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
+    """Hodges-Lehmann shift (median of all a_i - b_j) with the distribution-free interval
+    [D_(k), D_(mn+1-k)] from the Mann-Whitney distribution. Assumes the two distributions have
+    the same shape (a pure shift) for the interval's coverage; the estimate itself is the median
+    pairwise difference whatever the shapes."""
+    sa, sb = np.sort(a), np.sort(b)
+    value = pairwise_median(sa, sb)
+    correction = float(stats.tiecorrect(np.concatenate([a, b])))
+    order = shift_interval_order(a.size, b.size, level, correction)
+    mn = a.size * b.size
+    notes = [f"order statistics k = {order.k} and {mn + 1 - order.k} of {mn} differences"
+             f" ({order.method.replace('_', ' ')})"]
+    if order.achieved_level is not None:
+        notes.append(f"exact confidence {order.achieved_level:.4f}")
+    if correction < 1.0:
+        notes.append("ties present: coverage of the distribution-free interval is approximate")
+    low = kth_pairwise_difference(sa, sb, order.k)
+    high = kth_pairwise_difference(sa, sb, mn + 1 - order.k)
+    return Estimate(value, Interval("distribution_free", low, high, level), None, tuple(notes))
+
+
+# ------------------------------------------------------------------ A with its interval
+
+
+def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
+    """A-hat, its variance estimate and the Brunner-Munzel degrees of freedom.
+
+    With placements P_Ai = R_Ai - R^(A)_Ai (pooled minus internal mid-rank: the number of B values
+    below a_i, ties halved) and likewise P_Bj:
+      A-hat = mean(P_A) / n_B,
+      var(A-hat) = S_A^2 / (n_A n_B^2) + S_B^2 / (n_B n_A^2),  S^2 the variances of the placements,
+      df = (S_A^2/(n_A n_B^2) + S_B^2/(n_B n_A^2))^2 /
+           [(S_A^2/(n_A n_B^2))^2/(n_A - 1) + (S_B^2/(n_B n_A^2))^2/(n_B - 1)]
+    (Brunner & Munzel 2000, eqs. 4.4-4.6; Neubert & Brunner 2007).
+    """
+    na, nb = a.size, b.size
+    pooled = midranks(np.concatenate([a, b]))
+    pa = pooled[:na] - midranks(a)
+    pb = pooled[na:] - midranks(b)
+    a_hat = float(np.mean(pa) / nb)
+    va = float(np.var(pa, ddof=1)) / (na * nb * nb)
+    vb = float(np.var(pb, ddof=1)) / (nb * na * na)
+    var = va + vb
+    df = var**2 / (va**2 / (na - 1) + vb**2 / (nb - 1)) if var > 0 else math.nan
+    return a_hat, var, df
+
+
+def _bounded(method: str, est: float, half: float, level: float, lo: float, hi: float) -> Interval:
+    low, high = est - half, est + half
+    note = None
+    if low < lo or high > hi:
+        low, high = max(low, lo), min(high, hi)
+        note = f"clipped to the index's range [{lo:g}, {hi:g}]"
+    return Interval(method, low, high, level, note)
+
+
+def prob_superiority(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
+    """A = P(X_A > X_B) + P(X_A = X_B)/2 with the Brunner-Munzel t interval, clipped to [0, 1].
+
+    Assumes only independent observations; unequal spreads and shapes are allowed (Brunner &
+    Munzel 2000). When the groups do not overlap the variance estimate is zero and the interval
+    is undefined (null with a reason)."""
+    a_hat, var, df = _brunner_munzel_parts(a, b)
+    if var <= 0:
+        return Estimate(a_hat, None, None, (
+            "no interval: the Brunner-Munzel variance is zero (the groups do not overlap or all"
+            " placements are equal)",))
+    half = stats.t.ppf(0.5 + level / 2, df) * math.sqrt(var)
+    return Estimate(a_hat, _bounded("brunner_munzel", a_hat, half, level, 0.0, 1.0), None,
+                    (f"Brunner-Munzel df = {df:.2f}",))
+
+
+def _map_from_a(est: Estimate, scale: float, shift: float, lo: float, hi: float) -> Estimate:
+    """Carry A and its interval to delta = 2A - 1 (a linear map with positive slope)."""
+    iv = est.interval
+    value = None if est.value is None else scale * est.value + shift
+    if iv is None:
+        return Estimate(value, None, est.reason, est.notes)
+    low = min(max(scale * iv.low + shift, lo), hi)
+    high = min(max(scale * iv.high + shift, lo), hi)
+    return Estimate(value, Interval(iv.method + "_via_A", low, high, iv.level, iv.note),
+                    est.reason, est.notes)
+
+
+def cliff_delta(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
+    """Cliff's delta = 2A - 1 with A's Brunner-Munzel interval carried over."""
+    return _map_from_a(prob_superiority(a, b, level), 2.0, -1.0, -1.0, 1.0)
+
+
+def rank_biserial(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
+    """Rank-biserial correlation (Kerby 2014); for two independent groups it equals Cliff's delta,
+    so it carries the same interval."""
+    est = cliff_delta(a, b, level)
+    return Estimate(est.value, est.interval, est.reason,
+                    est.notes + ("equals Cliff's delta for two independent groups",))
+
+
+def r_from_z(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
+    """r = z / sqrt(N) from the Mann-Whitney z (tie-corrected, no continuity correction),
+    N = n_A + n_B. No analytic interval: the bootstrap interval is the index's interval."""
+    value = float(r_from_z_values(a, b))
+    if not math.isfinite(value):
+        return Estimate(None, None, "all values are tied: the Mann-Whitney z is undefined")
+    return Estimate(value, None, None, (f"N = {a.size + b.size} (both groups)",))

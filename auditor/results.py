@@ -1,0 +1,265 @@
+"""Frozen result objects for every stage of an audit, and their conversion to plain JSON data.
+
+No statistics are computed here. Every object has `to_dict()`; non-finite floats become `None`
+(JSON has no NaN or infinity), tuples become lists, and numbers keep full precision.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+SCHEMA_VERSION = "1.0"
+
+
+def plain(value: Any) -> Any:
+    """Convert a result tree to JSON-ready Python values (dict, list, str, int, float, None)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [plain(v) for v in value]
+    if isinstance(value, bool) or value is None or isinstance(value, str):
+        return value
+    if hasattr(value, "item") and not isinstance(value, (list, tuple)):  # numpy scalar
+        value = value.item()
+    if isinstance(value, bool):
+        return value
+    if isinstance(value, int):
+        return value
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    return value
+
+
+class _Plain:
+    def to_dict(self) -> dict[str, Any]:
+        return plain(self)
+
+
+# ---------------------------------------------------------------- data accounting
+
+
+@dataclass(frozen=True)
+class Exclusion(_Plain):
+    """One data row left out of the analysis: its line in the file (header = line 1) and why."""
+
+    row: int
+    reason: str
+
+
+@dataclass(frozen=True)
+class DataAccount(_Plain):
+    """Where every row of the file went.
+
+    rows_read = rows_used + len(excluded) + sum(not_selected.values())
+    """
+
+    source: str
+    rows_read: int
+    rows_used: int
+    excluded: tuple[Exclusion, ...]
+    not_selected: dict[str, int]
+    blank_lines: int = 0
+    encoding: str = "utf-8"
+    delimiter: str | None = None
+
+
+# ---------------------------------------------------------------- diagnostics
+
+
+@dataclass(frozen=True)
+class GroupSummary(_Plain):
+    label: str
+    n: int
+    missing: int
+    mean: float
+    sd: float
+    median: float
+    q1: float
+    q3: float
+    min: float
+    max: float
+
+
+@dataclass(frozen=True)
+class Normality(_Plain):
+    label: str
+    n: int
+    shapiro_w: float | None
+    shapiro_p: float | None
+    dagostino_k2: float | None
+    dagostino_p: float | None
+    anderson_a2: float | None
+    anderson_p: float | None
+    skewness: float | None
+    skewness_se: float | None
+    excess_kurtosis: float | None
+    kurtosis_se: float | None
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Spread(_Plain):
+    sd_ratio: float | None
+    larger_sd_group: str
+    iqr_ratio: float | None
+    mad_ratio: float | None
+    levene_w: float | None
+    levene_p: float | None
+    brown_forsythe_w: float | None
+    brown_forsythe_p: float | None
+    fligner_x2: float | None
+    fligner_p: float | None
+    n_ratio: float
+    smaller_group_has_larger_sd: bool
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Ties(_Plain):
+    label: str
+    n: int
+    tie_fraction: float
+    distinct_values: int
+    largest_tie_block: int
+    tie_correction: float
+    looks_discrete: bool
+
+
+@dataclass(frozen=True)
+class Outliers(_Plain):
+    label: str
+    rows: tuple[int, ...]
+    beyond_1_5_iqr_rows: tuple[int, ...]
+    beyond_3_iqr_rows: tuple[int, ...]
+    modified_z_rows: tuple[int, ...]
+    lower_fence: float
+    upper_fence: float
+    floor_share: float
+    ceiling_share: float
+
+
+@dataclass(frozen=True)
+class NormalTheoryCheck(_Plain):
+    """How well the normal model reads the overlap of the two groups."""
+
+    cohen_d: float | None
+    implied_prob_superiority: float | None
+    observed_prob_superiority: float | None
+    gap: float | None
+    implied_d_from_observed: float | None
+
+
+@dataclass(frozen=True)
+class Diagnostics(_Plain):
+    normality: tuple[Normality, ...]
+    spread: Spread
+    ties: Ties
+    ties_by_group: tuple[Ties, ...]
+    outliers: tuple[Outliers, ...]
+    normal_theory: NormalTheoryCheck
+
+    def to_dict(self) -> dict[str, Any]:
+        out = plain(self)
+        ties = out.pop("ties")
+        ties["by_group"] = out.pop("ties_by_group")
+        out["ties"] = ties
+        return out
+
+
+# ---------------------------------------------------------------- effects
+
+
+@dataclass(frozen=True)
+class Interval(_Plain):
+    """A confidence interval and the method that produced it."""
+
+    method: str
+    low: float | None
+    high: float | None
+    level: float
+    note: str | None = None
+
+
+@dataclass(frozen=True)
+class Effect(_Plain):
+    """One effect size with its intervals.
+
+    `ci_low`/`ci_high` repeat the interval of the index's own method (`ci_method`); `intervals`
+    lists every interval computed, the bootstrap one included. `estimate` is None with a `reason`
+    when the index is undefined for these data.
+    """
+
+    name: str
+    family: str
+    estimate: float | None
+    ci_low: float | None
+    ci_high: float | None
+    ci_method: str
+    intervals: tuple[Interval, ...]
+    null_value: float
+    assumes: str
+    reason: str | None = None
+    notes: tuple[str, ...] = ()
+
+    def interval(self, method: str) -> Interval | None:
+        for iv in self.intervals:
+            if iv.method == method:
+                return iv
+        return None
+
+
+# ---------------------------------------------------------------- whole audit
+
+
+@dataclass(frozen=True)
+class Settings(_Plain):
+    level: float
+    bootstrap_resamples: int
+    seed: int
+    reference: str
+
+
+@dataclass(frozen=True)
+class AuditResult(_Plain):
+    """Everything one audit found. `to_dict()` is the JSON document the command line writes."""
+
+    design: str
+    outcome: str
+    group_column: str
+    groups: tuple[GroupSummary, ...]
+    data: DataAccount
+    diagnostics: Diagnostics
+    effects: tuple[Effect, ...]
+    settings: Settings
+    caution: str
+    tool_version: str
+    schema_version: str = SCHEMA_VERSION
+    warnings: tuple[str, ...] = field(default=())
+
+    def effect(self, name: str) -> Effect:
+        for e in self.effects:
+            if e.name == name:
+                return e
+        raise KeyError(name)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "schema_version": self.schema_version,
+            "tool_version": self.tool_version,
+            "design": self.design,
+            "outcome": self.outcome,
+            "group_column": self.group_column,
+            "direction": f"{self.groups[0].label} relative to {self.groups[1].label}",
+            "groups": plain(self.groups),
+            "data": plain(self.data),
+            "diagnostics": self.diagnostics.to_dict(),
+            "effects": {e.name: plain(e) for e in self.effects},
+            "settings": plain(self.settings),
+            "warnings": list(self.warnings),
+            "caution": self.caution,
+        }
