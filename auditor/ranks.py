@@ -112,9 +112,16 @@ def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) 
     def count_le(t: float) -> int:  # number of pairs with a_i - b_j <= t, i.e. b_j >= a_i - t
         return int(m * a.size - np.searchsorted(b, a - t, side="left").sum())
 
-    lo = float(np.nextafter(a[0] - b[-1], -np.inf))
-    hi = float(a[-1] - b[0])
-    c_lo, c_hi = 0, a.size * m
+    lo, hi = float(a[0] - b[-1]), float(a[-1] - b[0])
+    pad = max(abs(lo), abs(hi), 1.0) * 1e-9
+    lo, hi = lo - pad, hi + pad  # the counts below, not the arithmetic, define the bracket
+    c_lo, c_hi = count_le(lo), count_le(hi)
+    while c_lo >= k:
+        lo -= 2 * pad + abs(lo)
+        c_lo = count_le(lo)
+    while c_hi < k:
+        hi += 2 * pad + abs(hi)
+        c_hi = count_le(hi)
     budget = 4 * (a.size + m)
     while c_hi - c_lo > budget:
         mid = lo + (hi - lo) / 2
