@@ -158,22 +158,34 @@ def mean_difference(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
 def noncentral_t_limits(t_obs: float, df: float, level: float) -> tuple[float, float] | None:
     """Noncentrality parameters (lo, hi) with P(T <= t_obs | lo) = (1 + level)/2 and
     P(T <= t_obs | hi) = (1 - level)/2 for T noncentral t with `df` degrees of freedom
-    (Steiger & Fouladi 1997, confidence-interval inversion). None when the roots cannot be
-    bracketed or the distribution function fails numerically (very large |t| or df)."""
-    targets = (0.5 + level / 2, 0.5 - level / 2)
-    spread_ = math.sqrt(1.0 + t_obs * t_obs / (2.0 * df))
+    (Steiger & Fouladi 1997, confidence-interval inversion).
+
+    Each root is bracketed by stepping outward from t_obs in half-SE steps (SE of t under the
+    normal approximation, sqrt(1 + t^2 / (2 df))), so the distribution function is only evaluated
+    near the root, where it is accurate. None when no bracket is found or the distribution
+    function fails numerically (very large |t| or df).
+    """
+    step = 0.5 * math.sqrt(1.0 + t_obs * t_obs / (2.0 * df))
     limits = []
     with np.errstate(all="ignore"), warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        for target in targets:
+        for target, direction in ((0.5 + level / 2, -1.0), (0.5 - level / 2, 1.0)):
             f = lambda ncp, tgt=target: special.nctdtr(df, ncp, t_obs) - tgt  # noqa: E731
-            width = 8.0 * spread_ + 1.0
-            lo, hi = t_obs - width, t_obs + width
-            flo, fhi = f(lo), f(hi)
-            if not (np.isfinite(flo) and np.isfinite(fhi)) or flo * fhi > 0:
+            prev, f_prev = t_obs, f(t_obs)
+            bracket = None
+            for i in range(1, 81):
+                x = t_obs + direction * step * i
+                fx = f(x)
+                if not (np.isfinite(f_prev) and np.isfinite(fx)):
+                    return None
+                if f_prev * fx <= 0:
+                    bracket = (min(prev, x), max(prev, x))
+                    break
+                prev, f_prev = x, fx
+            if bracket is None:
                 return None
             try:
-                root = optimize.brentq(f, lo, hi, xtol=1e-12, rtol=1e-12, maxiter=200)
+                root = optimize.brentq(f, *bracket, xtol=1e-12, rtol=1e-12, maxiter=200)
             except (ValueError, RuntimeError):
                 return None
             limits.append(root)

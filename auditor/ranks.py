@@ -209,10 +209,9 @@ def shift_interval_order(na: int, nb: int, level: float, tie_correction: float) 
     mn = na * nb
     if mn <= EXACT_MAX_PAIRS and tie_correction == 1.0:
         cdf = np.cumsum(mann_whitney_null_pmf(na, nb))
-        below = np.flatnonzero(cdf <= alpha2 + 1e-12)
-        k = int(below[-1]) + 2 if below.size else 1
-        achieved = 1 - 2 * float(cdf[k - 2]) if k >= 2 else 1.0
-        return RankOrder(max(k, 1), "exact", achieved)
+        below = np.flatnonzero(cdf <= alpha2 + 1e-12)  # values u with P(U <= u) <= alpha/2
+        k = int(below[-1]) + 1 if below.size else 1  # k - 1 = the largest such u
+        return RankOrder(k, "exact", 1 - 2 * float(cdf[k - 1]))
     z = stats.norm.ppf(1 - alpha2)
     n = na + nb
     var = mn / 12.0 * (n + 1) * tie_correction
@@ -234,6 +233,9 @@ def hodges_lehmann(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
              f" ({order.method.replace('_', ' ')})"]
     if order.achieved_level is not None:
         notes.append(f"exact confidence {order.achieved_level:.4f}")
+        if order.achieved_level < level:
+            notes.append("the samples are too small to reach the requested level;"
+                         " the widest interval (all differences) is given")
     if correction < 1.0:
         notes.append("ties present: coverage of the distribution-free interval is approximate")
     low = kth_pairwise_difference(sa, sb, order.k)
