@@ -173,7 +173,7 @@ def _detect_delimiter(text: str, p: Path) -> str:
 
 
 def _read_text(text: str, delimiter: str, p: Path):
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
     header: list[str] = []
     rows: list[list[str]] = []
     lines: list[int] = []
@@ -210,6 +210,7 @@ def _read_workbook(p: Path):
         raise InputFileError(f"{p}: not a readable .xlsx workbook ({type(exc).__name__})") from None
     try:
         sheet = book.worksheets[0]
+        sheet.reset_dimensions()  # read every row, whatever used range the file claims
         header: list[str] = []
         rows: list[list[str]] = []
         lines: list[int] = []
@@ -220,9 +221,12 @@ def _read_workbook(p: Path):
             if not any(c.strip() for c in cells):
                 blank += 1
                 continue
+            while cells and not cells[-1].strip():  # trailing empty cells carry nothing
+                cells.pop()
             if not header:
                 header = cells
                 continue
+            cells += [""] * (len(header) - len(cells))  # a sheet row may stop early
             rows.append(cells)
             lines.append(number)
     finally:

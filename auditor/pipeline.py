@@ -12,6 +12,7 @@ import numpy as np
 from auditor import __version__, diagnostics
 from auditor.design import TwoGroups, parse_group_list, two_groups
 from auditor.effects import EffectSpec, two_group_effects
+from auditor.parametric import Estimate
 from auditor.errors import DesignError, UndefinedEffectWarning
 from auditor.load import Table, read_table
 from auditor.rationale import CAUTION
@@ -96,7 +97,7 @@ def _reference_index(design: TwoGroups, reference: str | None) -> int:
 
 
 def _estimate_all(specs: tuple[EffectSpec, ...], a, b, level, resamples, rng, progress):
-    estimates = {s.name: s.estimate(a, b, level) for s in specs}
+    estimates = {s.name: _guarded(s, a, b, level) for s in specs}
     defined = {s.name: s.values for s in specs if estimates[s.name].value is not None}
     replicates = bootstrap_replicates(defined, a, b, resamples, rng, progress)
     effects, notes = [], []
@@ -121,6 +122,22 @@ def _estimate_all(specs: tuple[EffectSpec, ...], a, b, level, resamples, rng, pr
             spec.assumes, None, est.notes + extra,
         ))
     return tuple(effects), notes
+
+
+def _guarded(spec: EffectSpec, a, b, level) -> Estimate:
+    """The effect's estimate, or null with a reason when the values overflow double precision."""
+    try:
+        with np.errstate(over="raise", invalid="ignore", divide="ignore"):
+            est = spec.estimate(a, b, level)
+    except (OverflowError, FloatingPointError):
+        return Estimate(None, None, "the values are too large for double precision arithmetic")
+    if est.value is not None and not np.isfinite(est.value):
+        return Estimate(None, None, "the estimate is not finite in double precision")
+    if est.interval is not None and not (np.isfinite(est.interval.low)
+                                         and np.isfinite(est.interval.high)):
+        return Estimate(est.value, None, None,
+                        est.notes + ("the analytic interval is not finite in double precision",))
+    return est
 
 
 def _diagnose(design: TwoGroups, effects: tuple[Effect, ...]) -> Diagnostics:

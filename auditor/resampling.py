@@ -10,7 +10,6 @@ of A, then those of B), so the two give the same replicates from the same genera
 
 from __future__ import annotations
 
-import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
@@ -93,15 +92,19 @@ def acceleration(loo: tuple[np.ndarray, ...]) -> float:
     summed over the strata as in scipy.stats.bootstrap):
     a = sum_j sum_i U_ji^3 / n_j^3 / (6 [sum_j sum_i U_ji^2 / n_j^2]^(3/2)),
     U_ji = (n_j - 1)(mean_i theta_j(i) - theta_j(i))."""
-    num = den = 0.0
-    for values in loo:
-        n = float(values.size)
-        u = (n - 1) * (np.mean(values) - values)
-        num += float(np.sum(u**3)) / n**3
-        den += float(np.sum(u**2)) / n**2
-    if den <= 0 or not math.isfinite(den):
+    num = den = np.float64(0.0)
+    with np.errstate(all="ignore"):
+        for values in loo:
+            if values.size < 2:  # a stratum whose leave-one-out values are all undefined
+                continue
+            n = np.float64(values.size)
+            u = (n - 1) * (np.mean(values) - values)
+            num += np.sum(u**3) / n**3
+            den += np.sum(u**2) / n**2
+        acc = num / (6.0 * den**1.5)
+    if not (den > 0 and np.isfinite(acc)):
         return 0.0
-    return num / (6.0 * den**1.5)
+    return float(acc)
 
 
 def bca_interval(theta_hat: float, replicates: np.ndarray, loo: tuple[np.ndarray, ...],
