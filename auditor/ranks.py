@@ -134,9 +134,15 @@ def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) 
             lo, c_lo = mid, c_mid
     left = np.searchsorted(b, a - hi, side="left")
     right = np.searchsorted(b, a - lo, side="left")
-    parts = [a[i] - b[left[i]:right[i]] for i in np.flatnonzero(right > left)]
-    candidates = np.sort(np.concatenate(parts)) if parts else np.array([hi])
-    return float(candidates[k - c_lo - 1])
+    counts = right - left
+    total = int(counts.sum())
+    if total == 0:
+        return hi
+    i_idx = np.repeat(np.arange(a.size), counts)
+    starts = np.repeat(np.cumsum(counts) - counts, counts)
+    j_idx = np.arange(total) - starts + np.repeat(left, counts)
+    candidates = a[i_idx] - b[j_idx]
+    return float(np.partition(candidates, k - c_lo - 1)[k - c_lo - 1])
 
 
 def pairwise_median(a_sorted: np.ndarray, b_sorted: np.ndarray) -> float:
