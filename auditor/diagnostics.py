@@ -13,6 +13,7 @@ import warnings
 import numpy as np
 from scipy import special, stats
 
+from auditor.moments import sample_sd
 from auditor.results import GroupSummary, NormalTheoryCheck, Normality, Outliers, Spread, Ties
 
 SHAPIRO_MAX_N = 5000
@@ -38,7 +39,7 @@ def describe(label: str, x: np.ndarray, missing: int = 0) -> GroupSummary:
     q1, med, q3 = np.percentile(x, [25, 50, 75])
     return GroupSummary(
         label=label, n=int(x.size), missing=int(missing), mean=float(np.mean(x)),
-        sd=float(np.std(x, ddof=1)) if x.size > 1 else math.nan,
+        sd=float(sample_sd(x)) if x.size > 1 else math.nan,
         median=float(med), q1=float(q1), q3=float(q3), min=float(np.min(x)), max=float(np.max(x)),
     )
 
@@ -134,7 +135,7 @@ def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
     scipy.stats.fligner). Ratios are None when the smaller spread is zero.
     """
     notes: list[str] = []
-    sd = (float(np.std(a, ddof=1)), float(np.std(b, ddof=1)))
+    sd = (float(sample_sd(a)), float(sample_sd(b)))
     iqr = (float(stats.iqr(a)), float(stats.iqr(b)))
     mad = (float(stats.median_abs_deviation(a)), float(stats.median_abs_deviation(b)))
     if min(sd) == 0:

@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special, stats
 
+from auditor.moments import mean_var, sample_sd
 from auditor.results import Interval
 
 ROBUST_TRIM = 0.2
@@ -41,13 +42,6 @@ class Estimate:
         return self.value
 
 
-def _mean_var(x, axis=-1):
-    n = x.shape[axis]
-    m = np.mean(x, axis=axis)
-    v = np.sum((x - np.expand_dims(m, axis)) ** 2, axis=axis) / (n - 1)
-    return m, v, n
-
-
 def _undefined(reason: str) -> Estimate:
     return Estimate(None, None, reason)
 
@@ -62,8 +56,8 @@ def mean_difference_values(a, b):
 
 def pooled_sd_values(a, b):
     """sqrt(((n_A - 1) s_A^2 + (n_B - 1) s_B^2) / (n_A + n_B - 2))."""
-    _, va, na = _mean_var(a)
-    _, vb, nb = _mean_var(b)
+    _, va, na = mean_var(a)
+    _, vb, nb = mean_var(b)
     return np.sqrt(((na - 1) * va + (nb - 1) * vb) / (na + nb - 2))
 
 
@@ -90,14 +84,14 @@ def glass_delta_values(a, b, reference: int = 1):
     (B when reference = 1, A when reference = 0) (Glass, McGaw & Smith 1981)."""
     ref = b if reference == 1 else a
     with np.errstate(divide="ignore", invalid="ignore"):
-        return mean_difference_values(a, b) / np.std(ref, axis=-1, ddof=1)
+        return mean_difference_values(a, b) / sample_sd(ref)
 
 
 def d_unpooled_values(a, b):
     """(mean_A - mean_B) / sqrt((s_A^2 + s_B^2) / 2): the SD is the root of the average variance,
     which does not assume equal variances (Bonett 2008)."""
-    _, va, _ = _mean_var(a)
-    _, vb, _ = _mean_var(b)
+    _, va, _ = mean_var(a)
+    _, vb, _ = mean_var(b)
     with np.errstate(divide="ignore", invalid="ignore"):
         return mean_difference_values(a, b) / np.sqrt((va + vb) / 2)
 
@@ -124,7 +118,7 @@ def winsorized_variance_values(x, proportion: float = ROBUST_TRIM):
         s = s.copy()
         s[..., :g] = s[..., g:g + 1]
         s[..., n - g:] = s[..., n - g - 1:n - g]
-    return np.var(s, axis=-1, ddof=1)
+    return mean_var(s)[1]
 
 
 def robust_d_values(a, b):
@@ -144,8 +138,8 @@ def robust_d_values(a, b):
 def mean_difference(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     """mean_A - mean_B with the Welch interval: diff +- t(level; nu) sqrt(s_A^2/n_A + s_B^2/n_B),
     nu by Welch-Satterthwaite. Assumes independent observations; not equal variances."""
-    ma, va, na = _mean_var(a)
-    mb, vb, nb = _mean_var(b)
+    ma, va, na = mean_var(a)
+    mb, vb, nb = mean_var(b)
     diff = float(ma - mb)
     se2 = va / na + vb / nb
     if se2 == 0:
@@ -250,8 +244,8 @@ def d_unpooled(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     var = d^2 (s_A^4/(n_A-1) + s_B^4/(n_B-1)) / (8 s^4) + (s_A^2/(n_A-1) + s_B^2/(n_B-1)) / s^2,
     s^2 = (s_A^2 + s_B^2)/2 (Bonett 2008, eq. 5, from memory; checked by simulation in the tests).
     Does not assume equal variances."""
-    _, va, na = _mean_var(a)
-    _, vb, nb = _mean_var(b)
+    _, va, na = mean_var(a)
+    _, vb, nb = mean_var(b)
     s2 = (va + vb) / 2
     value = float(d_unpooled_values(a, b))
     if not math.isfinite(value):

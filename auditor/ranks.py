@@ -25,6 +25,7 @@ from auditor.parametric import Estimate
 from auditor.results import Interval
 
 EXACT_MAX_PAIRS = 2500  # exact Mann-Whitney null distribution up to n_A n_B = 2500, no ties
+STALLED_MAX_CANDIDATES = 20_000_000  # candidates listed exactly when bisection stalls on ties
 
 
 # ------------------------------------------------------------------ ranks along the last axis
@@ -126,7 +127,7 @@ def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) 
     while c_hi - c_lo > budget:
         mid = lo + (hi - lo) / 2
         if not lo < mid < hi:
-            return hi  # nothing representable strictly between: every candidate equals hi
+            break  # the bracket cannot shrink: its candidates are (nearly) all one tied value
         c_mid = count_le(mid)
         if c_mid >= k:
             hi, c_hi = mid, c_mid
@@ -135,9 +136,10 @@ def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) 
     left = np.searchsorted(b, a - hi, side="left")
     right = np.searchsorted(b, a - lo, side="left")
     counts = right - left
-    total = int(counts.sum())
-    if total == 0:
-        return hi
+    total = int(counts.sum())  # = c_hi - c_lo >= 1
+    if total > STALLED_MAX_CANDIDATES:  # a huge tie block: every candidate is within an ulp
+        first = int(np.flatnonzero(counts)[0])
+        return float(a[first] - b[left[first]])
     i_idx = np.repeat(np.arange(a.size), counts)
     starts = np.repeat(np.cumsum(counts) - counts, counts)
     j_idx = np.arange(total) - starts + np.repeat(left, counts)
