@@ -10,7 +10,7 @@ of A, then those of B), so the two give the same replicates from the same genera
 
 from __future__ import annotations
 
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -19,61 +19,81 @@ from scipy import special
 from auditor.results import Interval
 
 CHUNK_VALUES = 4_000_000
-Statistic = Callable[[np.ndarray, np.ndarray], np.ndarray]
+Statistic = Callable[..., np.ndarray]
 
 
 def chunk_size(na: int, nb: int, resamples: int) -> int:
+    """Resamples per chunk for two groups of sizes n_A and n_B (see `_chunk`)."""
+    return _chunk(na + nb, resamples)
+
+
+def _chunk(values_per_resample: int, resamples: int) -> int:
     """Resamples per chunk: as many as fit in CHUNK_VALUES drawn values (at least one)."""
-    return max(1, min(resamples, CHUNK_VALUES // (na + nb)))
+    return max(1, min(resamples, CHUNK_VALUES // max(1, values_per_resample)))
 
 
-def bootstrap_replicates(statistics: Mapping[str, Statistic], a: np.ndarray, b: np.ndarray,
-                         resamples: int, rng: np.random.Generator,
-                         progress: Callable[[int, int], None] | None = None) -> dict[str, np.ndarray]:
+def resample_units(statistics: Mapping[str, Statistic], samples: Sequence[np.ndarray],
+                   resamples: int, rng: np.random.Generator,
+                   progress: Callable[[int, int], None] | None = None) -> dict[str, np.ndarray]:
     """Replicates of every statistic over the same stratified resamples.
 
-    Each statistic takes stacked samples of shape (m, n_A) and (m, n_B) and returns m values.
+    Each sample is one stratum whose first axis indexes its units: a group's values (shape (n,))
+    for independent groups, or participants' rows (shape (n, k)) for paired and repeated designs,
+    so a participant's conditions stay together. Every stratum is resampled with replacement on
+    its own, keeping its size. A statistic takes the stacked resamples, one array per stratum of
+    shape (m, n_j, ...), and returns m values.
     """
-    na, nb = a.size, b.size
-    step = chunk_size(na, nb, resamples)
+    sizes = [s.shape[0] for s in samples]
+    step = _chunk(sum(s.size for s in samples), resamples)
     out = {name: np.empty(resamples) for name in statistics}
     done = 0
     while done < resamples:
         m = min(step, resamples - done)
-        ia = rng.integers(0, na, (m, na))
-        ib = rng.integers(0, nb, (m, nb))
-        xa, xb = a[ia], b[ib]
+        stacked = [s[rng.integers(0, n, (m, n))] for s, n in zip(samples, sizes)]
         with np.errstate(all="ignore"):
             for name, fn in statistics.items():
-                out[name][done:done + m] = fn(xa, xb)
+                out[name][done:done + m] = fn(*stacked)
         done += m
         if progress is not None:
             progress(done, resamples)
     return out
 
 
-def leave_one_out(statistic: Statistic, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """The statistic with each value of A left out in turn, then each value of B.
+def bootstrap_replicates(statistics: Mapping[str, Statistic], a: np.ndarray, b: np.ndarray,
+                         resamples: int, rng: np.random.Generator,
+                         progress: Callable[[int, int], None] | None = None) -> dict[str, np.ndarray]:
+    """Two independent groups: `resample_units` with the strata A and B."""
+    return resample_units(statistics, (a, b), resamples, rng, progress)
+
+
+def leave_one_out_units(statistic: Statistic, samples: Sequence[np.ndarray]) -> tuple[np.ndarray, ...]:
+    """The statistic with each unit of each stratum left out in turn (one array per stratum).
 
     Generic path: evaluates the statistic on stacked leave-one-out samples, a chunk of rows at a
     time (O(n^2) work, bounded memory).
     """
-    def drop_each(x: np.ndarray, other: np.ndarray, x_first: bool) -> np.ndarray:
-        n = x.size
+    total = sum(s.size for s in samples)
+    results = []
+    for j, x in enumerate(samples):
+        n = x.shape[0]
         base = np.arange(n - 1)
         result = np.empty(n)
-        step = max(1, CHUNK_VALUES // (n + other.size))
+        step = max(1, CHUNK_VALUES // max(1, total))
         for start in range(0, n, step):
             rows = np.arange(start, min(n, start + step))
             idx = base[None, :] + (base[None, :] >= rows[:, None])
-            left = x[idx]
-            stacked_other = np.broadcast_to(other, (rows.size, other.size))
+            stacked = [x[idx] if i == j else np.broadcast_to(s, (rows.size,) + s.shape)
+                       for i, s in enumerate(samples)]
             with np.errstate(all="ignore"):
-                result[start:start + rows.size] = (statistic(left, stacked_other) if x_first
-                                                   else statistic(stacked_other, left))
-        return result
+                result[start:start + rows.size] = statistic(*stacked)
+        results.append(result)
+    return tuple(results)
 
-    return drop_each(a, b, True), drop_each(b, a, False)
+
+def leave_one_out(statistic: Statistic, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Two independent groups: each value of A left out in turn, then each value of B."""
+    loo_a, loo_b = leave_one_out_units(statistic, (a, b))
+    return loo_a, loo_b
 
 
 @dataclass(frozen=True)
