@@ -1,0 +1,298 @@
+"""Omnibus effect sizes for three or more groups or conditions, and the tests beside them.
+
+k independent groups: epsilon-squared and eta-squared from the Kruskal-Wallis H, and eta-squared
+and omega-squared from the one-way ANOVA. k repeated conditions: Kendall's W from the Friedman
+statistic and the generalized eta-squared of the one-way repeated-measures ANOVA.
+
+Vectorised `*_values` functions take stacked resamples: for independent groups one array per group
+of shape (m, n_j); for repeated conditions one array of shape (m, n, k) (participants' rows).
+eta_squared_h and omega_squared can fall below zero when the groups differ less than chance
+alone would make them; the raw value is reported, never clipped.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import stats
+
+from auditor.parametric import Estimate
+from auditor.ranks import midranks, tie_sizes
+
+
+# ------------------------------------------------------------------ k independent groups
+
+
+def kruskal_h_values(*groups):
+    """Tie-corrected Kruskal-Wallis H = [12 / (N(N+1)) sum_j R_j^2 / n_j - 3(N+1)] / C,
+    C = 1 - sum(t^3 - t) / (N^3 - N) (Kruskal & Wallis 1952; scipy.stats.kruskal)."""
+    sizes = [g.shape[-1] for g in groups]
+    n = sum(sizes)
+    pooled = np.concatenate(groups, axis=-1)
+    ranks = midranks(pooled)
+    h = -3.0 * (n + 1)
+    start = 0
+    for size in sizes:
+        h = h + 12.0 / (n * (n + 1)) * np.sum(ranks[..., start:start + size], axis=-1) ** 2 / size
+        start += size
+    t = tie_sizes(pooled).astype(float)
+    correction = 1.0 - np.sum(t * t - 1.0, axis=-1) / (n**3 - n)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return h / correction
+
+
+def epsilon_squared_h_values(*groups):
+    """epsilon^2_H = H / (N - 1) (Kelley 1935 as given by Tomczak & Tomczak 2014, eq. 11)."""
+    n = sum(g.shape[-1] for g in groups)
+    return kruskal_h_values(*groups) / (n - 1)
+
+
+def eta_squared_h_values(*groups):
+    """eta^2_H = (H - k + 1) / (N - k) (Cohen 2008, p. 380; Tomczak & Tomczak 2014, eq. 12)."""
+    n, k = sum(g.shape[-1] for g in groups), len(groups)
+    return (kruskal_h_values(*groups) - k + 1) / (n - k)
+
+
+def _anova_parts(groups):
+    sizes = [g.shape[-1] for g in groups]
+    n = sum(sizes)
+    origin = groups[0][..., :1]  # centre on a data value for precision
+    centred = [g - origin for g in groups]
+    grand = sum(np.sum(c, axis=-1) for c in centred) / n
+    means = [np.mean(c, axis=-1) for c in centred]
+    ss_between = sum(size * (m - grand) ** 2 for size, m in zip(sizes, means))
+    ss_within = sum(np.sum((c - m[..., None]) ** 2, axis=-1) for c, m in zip(centred, means))
+    return ss_between, ss_within, n, len(groups)
+
+
+def eta_squared_values(*groups):
+    """eta^2 = SS_between / SS_total from the one-way ANOVA (Pearson's correlation ratio;
+    Cohen 1988, ch. 8)."""
+    sb, sw, _, _ = _anova_parts(groups)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return sb / (sb + sw)
+
+
+def omega_squared_values(*groups):
+    """omega^2 = (SS_between - (k - 1) MS_within) / (SS_total + MS_within) (Hays 1963;
+    Olejnik & Algina 2003, Table 1)."""
+    sb, sw, n, k = _anova_parts(groups)
+    ms_within = sw / (n - k)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (sb - (k - 1) * ms_within) / (sb + sw + ms_within)
+
+
+def _estimate_from(values_fn, reason, negative_note=None):
+    def estimate(*groups) -> Estimate:
+        value = float(values_fn(*groups))
+        if not math.isfinite(value):
+            return Estimate(None, None, reason)
+        notes = ()
+        if negative_note and value < 0:
+            notes = (negative_note,)
+        return Estimate(value, None, None, notes)
+    estimate.__doc__ = values_fn.__doc__
+    return estimate
+
+
+_BELOW_ZERO = ("below zero: the groups differ less than sampling error alone would make them;"
+               " read it as no effect (the raw value is kept, not clipped)")
+epsilon_squared_h = _estimate_from(epsilon_squared_h_values, "all values are tied: H is undefined")
+eta_squared_h = _estimate_from(eta_squared_h_values, "all values are tied: H is undefined",
+                               _BELOW_ZERO)
+eta_squared = _estimate_from(eta_squared_values, "every value is equal: SS_total is zero")
+omega_squared = _estimate_from(omega_squared_values, "every value is equal: SS_total is zero",
+                               _BELOW_ZERO)
+
+
+def independent_tests(groups) -> dict:
+    """Kruskal-Wallis, one-way ANOVA and Welch's ANOVA (Welch 1951) on the groups."""
+    out = {}
+    try:
+        kw = stats.kruskal(*groups)
+        out["kruskal_wallis"] = {"statistic": float(kw.statistic), "df": len(groups) - 1,
+                                 "p": float(kw.pvalue)}
+    except ValueError:
+        out["kruskal_wallis"] = {"statistic": None, "df": len(groups) - 1, "p": None}
+    with np.errstate(all="ignore"):
+        f = stats.f_oneway(*groups)
+        n = sum(len(g) for g in groups)
+        out["anova"] = {"statistic": _finite(f.statistic), "df": [len(groups) - 1, n - len(groups)],
+                        "p": _finite(f.pvalue)}
+        out["welch_anova"] = welch_anova(groups)
+    return out
+
+
+def welch_anova(groups) -> dict:
+    """Welch's F for unequal variances: weights w_j = n_j / s_j^2,
+    F = [sum w_j (m_j - m_w)^2 / (k - 1)] / [1 + 2 (k - 2) / (k^2 - 1) L],
+    L = sum (1 - w_j / W)^2 / (n_j - 1), df2 = (k^2 - 1) / (3 L) (Welch 1951)."""
+    k = len(groups)
+    n = np.array([len(g) for g in groups], dtype=float)
+    m = np.array([np.mean(g) for g in groups])
+    v = np.array([np.var(g, ddof=1) for g in groups])
+    if np.any(v == 0):
+        return {"statistic": None, "df": None, "p": None,
+                "reason": "a group has zero variance"}
+    w = n / v
+    total = w.sum()
+    mw = float(np.sum(w * m) / total)
+    lam = float(np.sum((1 - w / total) ** 2 / (n - 1)))
+    f = float(np.sum(w * (m - mw) ** 2) / (k - 1) / (1 + 2 * (k - 2) * lam / (k * k - 1)))
+    df2 = (k * k - 1) / (3 * lam)
+    return {"statistic": f, "df": [k - 1, df2], "p": float(stats.f.sf(f, k - 1, df2))}
+
+
+def _finite(x) -> float | None:
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+# ------------------------------------------------------------------ k repeated conditions
+
+
+def friedman_values(x):
+    """Tie-corrected Friedman chi^2 = 12 sum_j (R_j - n(k+1)/2)^2 / (n k (k+1) - sum(t^3 - t)/(k-1))
+    with ranks within each participant (Friedman 1937; scipy.stats.friedmanchisquare)."""
+    n, k = x.shape[-2], x.shape[-1]
+    ranks = midranks(x)
+    col = np.sum(ranks, axis=-2)
+    ss = np.sum((col - n * (k + 1) / 2.0) ** 2, axis=-1)
+    t = tie_sizes(x).astype(float)
+    ties = np.sum(t * t - 1.0, axis=(-2, -1))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return 12.0 * ss / (n * k * (k + 1) - ties / (k - 1))
+
+
+def kendall_w_values(x):
+    """Kendall's W = chi^2_F / (n (k - 1)), tie-corrected through chi^2_F (Kendall & Babington
+    Smith 1939); 0 = no agreement in the participants' orderings, 1 = all order alike."""
+    n, k = x.shape[-2], x.shape[-1]
+    return friedman_values(x) / (n * (k - 1))
+
+
+def _rm_parts(x):
+    n, k = x.shape[-2], x.shape[-1]
+    c = x - x[..., :1, :1]
+    grand = np.mean(c, axis=(-2, -1))
+    cond = np.mean(c, axis=-2)
+    subj = np.mean(c, axis=-1)
+    ss_cond = n * np.sum((cond - grand[..., None]) ** 2, axis=-1)
+    ss_subj = k * np.sum((subj - grand[..., None]) ** 2, axis=-1)
+    ss_total = np.sum((c - grand[..., None, None]) ** 2, axis=(-2, -1))
+    return ss_cond, ss_subj, ss_total - ss_cond - ss_subj, n, k
+
+
+def generalized_eta_squared_values(x):
+    """Generalized eta^2 for one within-participant factor:
+    SS_conditions / (SS_conditions + SS_participants + SS_error)
+    (Olejnik & Algina 2003, Table 2; Bakeman 2005, eq. 2)."""
+    sc, ss, se, _, _ = _rm_parts(x)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return sc / (sc + ss + se)
+
+
+kendall_w = _estimate_from(kendall_w_values, "every participant is tied across conditions")
+generalized_eta_squared = _estimate_from(generalized_eta_squared_values,
+                                         "every value is equal: the sums of squares are zero")
+
+
+def repeated_tests(x: np.ndarray, labels) -> dict:
+    """Friedman test (scipy), and the repeated-measures ANOVA F with the Greenhouse-Geisser
+    correction (degrees of freedom times epsilon; Greenhouse & Geisser 1959)."""
+    n, k = x.shape
+    out = {}
+    with np.errstate(all="ignore"):
+        chi2 = float(friedman_values(x))
+    out["friedman"] = {"statistic": _finite(chi2), "df": k - 1,
+                       "p": _finite(stats.chi2.sf(chi2, k - 1)) if math.isfinite(chi2) else None}
+    sc, _, se, _, _ = _rm_parts(x)
+    df1, df2 = k - 1, (n - 1) * (k - 1)
+    eps = greenhouse_geisser(x)
+    if se > 0:
+        f = float(sc / df1 / (se / df2))
+        out["rm_anova"] = {"statistic": f, "df": [df1, df2], "p": float(stats.f.sf(f, df1, df2)),
+                           "p_greenhouse_geisser": float(stats.f.sf(f, df1 * eps, df2 * eps)),
+                           "epsilon_gg": eps}
+    else:
+        out["rm_anova"] = {"statistic": None, "df": [df1, df2], "p": None,
+                           "reason": "the error sum of squares is zero"}
+    return out
+
+
+def greenhouse_geisser(x: np.ndarray) -> float:
+    """Greenhouse-Geisser epsilon from the double-centred covariance matrix S of the conditions:
+    eps = tr(S)^2 / ((k - 1) tr(S S)) (Greenhouse & Geisser 1959; pingouin.epsilon)."""
+    k = x.shape[1]
+    s = np.cov(x, rowvar=False)
+    centre = np.eye(k) - np.ones((k, k)) / k
+    sc = centre @ s @ centre
+    denom = (k - 1) * float(np.trace(sc @ sc))
+    return float(np.trace(sc) ** 2 / denom) if denom > 0 else 1.0
+
+
+def mauchly(x: np.ndarray) -> dict:
+    """Mauchly's test of sphericity on orthonormal contrasts C (k - 1 of them):
+    W = det(C'SC) / (tr(C'SC) / p)^p, p = k - 1, chi^2 = -(n - 1 - (2p^2 + p + 2) / (6p)) ln W,
+    df = p(p + 1)/2 - 1 (Mauchly 1940). With k = 2 sphericity holds trivially."""
+    n, k = x.shape
+    p = k - 1
+    if p < 2:
+        return {"w": 1.0, "chi2": 0.0, "df": 0, "p": 1.0, "epsilon_gg": 1.0,
+                "note": "two conditions: sphericity holds trivially"}
+    helmert = np.linalg.qr(np.vstack([np.ones(k), np.eye(k)[:-1]]).T)[0][:, 1:]
+    s = np.cov(x, rowvar=False)
+    t = helmert.T @ s @ helmert
+    tr = float(np.trace(t))
+    if tr <= 0:
+        return {"w": None, "chi2": None, "df": None, "p": None, "epsilon_gg": None,
+                "note": "no variation in the differences between conditions"}
+    w = float(np.linalg.det(t) / (tr / p) ** p)
+    if n - 1 < p or w <= 0:
+        return {"w": w, "chi2": None, "df": None, "p": None, "epsilon_gg": greenhouse_geisser(x),
+                "note": "too few participants for Mauchly's test"}
+    f = 1 - (2 * p * p + p + 2) / (6 * p * (n - 1))
+    chi2 = -(n - 1) * f * math.log(w)
+    df = p * (p + 1) / 2 - 1
+    # second-order term of the chi^2 approximation (Anderson 2003, sec. 10.7); written with k in
+    # one place, as R's mauchly.test and pingouin.sphericity do, so the p-values agree with them
+    w2 = ((p + 2) * (p - 1) * (p - 2) * (2 * p**3 + 6 * p**2 + 3 * k + 2)
+          / (288 * ((n - 1) * p * f) ** 2))
+    p1, p2 = stats.chi2.sf(chi2, df), stats.chi2.sf(chi2, df + 4)
+    return {"w": w, "chi2": chi2, "df": df, "p": float(p1 + w2 * (p2 - p1)),
+            "epsilon_gg": greenhouse_geisser(x)}
+
+
+# ------------------------------------------------------------------ pairwise follow-ups
+
+
+def holm(pvalues) -> list[float | None]:
+    """Holm's step-down adjustment (Holm 1979): sort p ascending, multiply the i-th (0-based) by
+    (m - i), enforce monotonicity, cap at 1. None stays None."""
+    present = [(p, i) for i, p in enumerate(pvalues) if p is not None]
+    m = len(present)
+    adjusted: list[float | None] = [None] * len(pvalues)
+    running = 0.0
+    for rank, (p, i) in enumerate(sorted(present)):
+        running = max(running, min(1.0, (m - rank) * p))
+        adjusted[i] = running
+    return adjusted
+
+
+def dunn_z(groups, i: int, j: int) -> tuple[float, float]:
+    """Dunn's (1964) z for groups i and j from the pooled mid-ranks:
+    z = (Rbar_i - Rbar_j) / sqrt((N(N+1)/12 - sum(t^3 - t) / (12 (N - 1))) (1/n_i + 1/n_j));
+    returns (z, two-sided p)."""
+    pooled = np.concatenate(groups)
+    ranks = midranks(pooled)
+    n = pooled.size
+    bounds = np.cumsum([0] + [len(g) for g in groups])
+    mean_rank = [float(np.mean(ranks[bounds[g]:bounds[g + 1]])) for g in range(len(groups))]
+    _, counts = np.unique(pooled, return_counts=True)
+    tie = float(np.sum(counts.astype(float) ** 3 - counts))
+    var = (n * (n + 1) / 12.0 - tie / (12.0 * (n - 1))) * (1 / len(groups[i]) + 1 / len(groups[j]))
+    if var <= 0:
+        return math.nan, math.nan
+    z = (mean_rank[i] - mean_rank[j]) / math.sqrt(var)
+    return z, float(2 * stats.norm.sf(abs(z)))
