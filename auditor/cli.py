@@ -42,20 +42,31 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     check = sub.add_parser(
-        "check", help="audit one outcome compared between two groups",
-        description="Audit one outcome compared between two independent groups: diagnostics,"
-                    " effect sizes with analytic and bootstrap intervals, data accounting.",
-        epilog="Example: auditor check trial.csv --outcome minutes --group arm"
-               " --groups coached,usual --json -",
+        "check", help="audit one outcome compared between groups or conditions",
+        description="Audit one outcome compared between groups or conditions: diagnostics,"
+                    " effect sizes with analytic and bootstrap intervals, data accounting."
+                    " The design follows from the options: --outcome and --group give two or"
+                    " more independent groups; adding --subject (long file) or using --paired"
+                    " (wide file) gives paired or repeated conditions.",
+        epilog="Examples:\n"
+               "  auditor check trial.csv --outcome minutes --group arm --groups coached,usual\n"
+               "  auditor check trial.csv --paired before,after --subject id\n"
+               "  auditor check visits.csv --outcome score --group visit --subject id --json -",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     check.add_argument("file", help="data file: .csv, .tsv (delimiter detected) or .xlsx")
-    check.add_argument("--outcome", required=True, metavar="COLUMN",
-                       help="column holding the numeric outcome")
-    check.add_argument("--group", required=True, metavar="COLUMN",
-                       help="column holding the group labels (long format)")
-    check.add_argument("--groups", metavar="A,B",
-                       help="the two levels to compare, in order; A is compared with B"
-                            " (default: the two levels in order of first appearance)")
+    check.add_argument("--outcome", metavar="COLUMN",
+                       help="column holding the numeric outcome (long format)")
+    check.add_argument("--group", metavar="COLUMN",
+                       help="column holding the group or condition labels (long format)")
+    check.add_argument("--groups", metavar="A,B[,C...]",
+                       help="the levels to compare, in order; with two, A is compared with B"
+                            " (default: every level, in order of first appearance)")
+    check.add_argument("--subject", metavar="COLUMN",
+                       help="participant id column: makes the design paired (two conditions) or"
+                            " repeated (three or more); in a wide file it names the rows")
+    check.add_argument("--paired", metavar="COL_A,COL_B[,...]",
+                       help="wide file: the condition columns, one row per participant")
     check.add_argument("--level", type=float, default=0.95,
                        help="confidence level of every interval (default 0.95)")
     check.add_argument("--reference", metavar="LABEL",
@@ -92,6 +103,15 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_USAGE
+    if args.command == "check" and not args.paired:
+        missing = [opt for opt, value in (("--outcome", args.outcome), ("--group", args.group))
+                   if not value]
+        if missing:
+            try:
+                parser.error(f"check needs {' and '.join(missing)} (or --paired COL_A,COL_B for a"
+                             " wide file)")
+            except _UsageError:
+                return EXIT_USAGE
     debug = getattr(args, "debug", False)
     try:
         from auditor.errors import AuditError
@@ -145,6 +165,7 @@ def _check(args) -> int:
         warnings.simplefilter("ignore")  # every condition is reported in the result itself
         result = audit(
             args.file, outcome=args.outcome, group=args.group, groups=args.groups,
+            subject=args.subject, paired_columns=args.paired,
             level=args.level, resamples=args.boot,
             seed=DEFAULT_SEED if args.seed is None else args.seed,
             reference=args.reference, progress=_progress_printer(),

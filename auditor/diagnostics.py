@@ -14,7 +14,8 @@ import numpy as np
 from scipy import special, stats
 
 from auditor.moments import sample_sd
-from auditor.results import GroupSummary, NormalTheoryCheck, Normality, Outliers, Spread, Ties
+from auditor.results import (GroupSummary, KDiagnostics, KSpread, NormalTheoryCheck, Normality,
+                             Outliers, PairedDiagnostics, Spread, Ties)
 
 SHAPIRO_MAX_N = 5000
 DAGOSTINO_MIN_N = 20
@@ -220,3 +221,64 @@ def normal_theory_check(d: float | None, observed_a: float | None) -> NormalTheo
         back = float(math.sqrt(2.0) * special.ndtri(observed_a))
     gap = None if implied is None or observed_a is None else observed_a - implied
     return NormalTheoryCheck(d, implied, observed_a, gap, back)
+
+
+def paired_screen(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, d: np.ndarray,
+                  rows: np.ndarray, digits: int, sign: dict) -> PairedDiagnostics:
+    """Screening of paired data: normality, ties and outliers of the differences d = a - b (the
+    quantities the paired t interval and the signed-rank methods assume things about), the share
+    of zero differences, the Pearson correlation of the two conditions (scipy.stats.pearsonr),
+    and each condition's own normality for reference."""
+    corr = corr_p = None
+    if np.ptp(a) > 0 and np.ptp(b) > 0:
+        res = _quiet(stats.pearsonr, a, b)
+        corr, corr_p = _finite(res.statistic), _finite(res.pvalue)
+    return PairedDiagnostics(
+        differences_normality=normality("differences", d),
+        conditions_normality=tuple(normality(lab, x) for lab, x in zip(labels, (a, b))),
+        differences_ties=ties("differences", d),
+        differences_outliers=outliers("differences", d, rows, float(d.min()), float(d.max())),
+        zero_share=float(np.mean(d == 0)), correlation=corr, correlation_p=corr_p,
+        rounding_decimals=int(digits), sign_test=sign,
+    )
+
+
+def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...]) -> KSpread:
+    """Spread across k groups: largest over smallest SD, Levene (mean-centred), Brown-Forsythe
+    (median-centred) and Fligner-Killeen across all groups (scipy.stats), and the n ratio."""
+    sds = [float(sample_sd(g)) for g in groups]
+    hi, lo = int(np.argmax(sds)), int(np.argmin(sds))
+    notes: list[str] = []
+    if sds[lo] == 0:
+        notes.append("a group has zero spread: tests of equal spread are undefined")
+        lev = bf = fl = (None, None)
+    else:
+        r1 = _quiet(stats.levene, *groups, center="mean")
+        r2 = _quiet(stats.levene, *groups, center="median")
+        r3 = _quiet(stats.fligner, *groups)
+        lev = (_finite(r1.statistic), _finite(r1.pvalue))
+        bf = (_finite(r2.statistic), _finite(r2.pvalue))
+        fl = (_finite(r3.statistic), _finite(r3.pvalue))
+    sizes = [g.size for g in groups]
+    return KSpread(
+        sd_ratio=sds[hi] / sds[lo] if sds[lo] > 0 else None, largest_sd_group=labels[hi],
+        smallest_sd_group=labels[lo], levene_w=lev[0], levene_p=lev[1], brown_forsythe_w=bf[0],
+        brown_forsythe_p=bf[1], fligner_x2=fl[0], fligner_p=fl[1],
+        n_ratio=max(sizes) / min(sizes), notes=tuple(notes),
+    )
+
+
+def k_screen(labels: tuple[str, ...], groups: tuple[np.ndarray, ...],
+             rows: tuple[np.ndarray, ...], sphericity: dict | None = None) -> KDiagnostics:
+    """Screening of k groups or conditions: each one's normality and outliers, spread across
+    all, pooled ties, and (repeated conditions) Mauchly's sphericity test."""
+    pooled = np.concatenate(groups)
+    floor, ceiling = float(pooled.min()), float(pooled.max())
+    return KDiagnostics(
+        normality=tuple(normality(lab, g) for lab, g in zip(labels, groups)),
+        spread=k_spread(labels, groups),
+        ties=ties("pooled", pooled),
+        outliers=tuple(outliers(lab, g, r, floor, ceiling)
+                       for lab, g, r in zip(labels, groups, rows)),
+        sphericity=sphericity,
+    )

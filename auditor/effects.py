@@ -1,5 +1,8 @@
 """The registry of effect sizes: name -> how to estimate it, its family, no-effect value, range,
-and what it assumes. The pipeline runs every registered effect the same way.
+and what it assumes. The pipeline runs every registered effect the same way: `estimate(*samples,
+level)` on the design's samples, `values(*stacked)` on stacked bootstrap or leave-one-out samples.
+Samples are (A, B) for two groups, (rows,) with rows of shape (n, 2) or (n, k) for paired and
+repeated designs, and the k groups for k independent groups.
 
 To add an effect: write its vectorised point estimate (`*_values(a, b)` along the last axis) and
 its estimate-with-interval function in `parametric.py` or `ranks.py`, then add one `EffectSpec`
@@ -14,8 +17,8 @@ from functools import partial
 
 import numpy as np
 
+from auditor import kgroups, paired, ranks
 from auditor import parametric as par
-from auditor import ranks
 from auditor.parametric import Estimate
 
 
@@ -25,7 +28,7 @@ class EffectSpec:
     family: str  # "mean", "standardized_mean", "dominance" or "shift"
     null_value: float
     bounds: tuple[float, float] | None
-    signed: bool  # True: negates when A and B swap; False: maps to 1 - value (probabilities)
+    signed: bool  # True: negates when A and B swap; False: does not (probabilities map to 1 - value)
     assumes: str
     estimate: Callable[[np.ndarray, np.ndarray, float], Estimate]
     values: Callable[[np.ndarray, np.ndarray], np.ndarray]
@@ -68,6 +71,88 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
                    ranks.hodges_lehmann, ranks.hodges_lehmann_values),
+    )
+
+
+def _pair_estimate(fn, digits):
+    def estimate(x, level):
+        return fn(x[:, 0], x[:, 1], level, digits)
+    return estimate
+
+
+def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
+    """Effects for two conditions on the same participants; differences are rounded to `digits`
+    decimal places before signs and ranks are taken (see `paired.differences`)."""
+    def spec(name, family, null, bounds, signed, assumes, est, values):
+        return EffectSpec(name, family, null, bounds, signed, assumes,
+                          _pair_estimate(est, digits), partial(values, digits=digits))
+    normal_d = "normally distributed differences"
+    return (
+        spec("mean_difference", "mean", 0.0, None, True,
+             "interval: near-normal differences (or large n)",
+             paired.mean_difference, paired.mean_difference_values),
+        spec("d_z", "standardized_mean", 0.0, None, True, normal_d + "; scaled by SD of differences",
+             paired.d_z, paired.d_z_values),
+        spec("d_av", "standardized_mean", 0.0, None, True,
+             "near-normal conditions; scaled by the average of the two SDs",
+             paired.d_av, paired.d_av_values),
+        spec("d_rm", "standardized_mean", 0.0, None, True,
+             "near-normal conditions; d_z rescaled by the A-B correlation",
+             paired.d_rm, paired.d_rm_values),
+        spec("ps_dep", "dominance", 0.5, (0.0, 1.0), False,
+             "pairs independent of each other; signs only", paired.ps_dep, paired.ps_dep_values),
+        spec("matched_rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
+             "pairs independent; differences comparable in size (signed ranks)",
+             paired.matched_rank_biserial, paired.matched_rank_biserial_values),
+        spec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
+             "signed-rank z; depends on N as well as on the effect",
+             paired.r_from_z, paired.r_from_z_values),
+        spec("hodges_lehmann", "shift", 0.0, None, True,
+             "interval: differences symmetric about their centre",
+             paired.hodges_lehmann, paired.hodges_lehmann_values),
+    )
+
+
+def _omnibus(fn):
+    def estimate(*samples_and_level):
+        return fn(*samples_and_level[:-1])
+    return estimate
+
+
+def _rows_omnibus(fn):
+    def estimate(x, level):
+        return fn(x)
+    return estimate
+
+
+def k_independent_effects() -> tuple[EffectSpec, ...]:
+    """Omnibus effects for three or more independent groups."""
+    return (
+        EffectSpec("epsilon_squared_h", "variance_explained", 0.0, (0.0, 1.0), False,
+                   "independent observations (ranks only)",
+                   _omnibus(kgroups.epsilon_squared_h), kgroups.epsilon_squared_h_values),
+        EffectSpec("eta_squared_h", "variance_explained", 0.0, None, False,
+                   "independent observations (ranks only); can fall below zero",
+                   _omnibus(kgroups.eta_squared_h), kgroups.eta_squared_h_values),
+        EffectSpec("eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
+                   "normal groups with equal variances; biased upward in small samples",
+                   _omnibus(kgroups.eta_squared), kgroups.eta_squared_values),
+        EffectSpec("omega_squared", "variance_explained", 0.0, None, False,
+                   "normal groups with equal variances; can fall below zero",
+                   _omnibus(kgroups.omega_squared), kgroups.omega_squared_values),
+    )
+
+
+def k_repeated_effects() -> tuple[EffectSpec, ...]:
+    """Omnibus effects for three or more conditions on the same participants."""
+    return (
+        EffectSpec("kendall_w", "agreement", 0.0, (0.0, 1.0), False,
+                   "participants independent of each other (ranks within participant)",
+                   _rows_omnibus(kgroups.kendall_w), kgroups.kendall_w_values),
+        EffectSpec("generalized_eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
+                   "normal data; sphericity for the F test beside it",
+                   _rows_omnibus(kgroups.generalized_eta_squared),
+                   kgroups.generalized_eta_squared_values),
     )
 
 

@@ -1,33 +1,37 @@
-"""audit(): runs the stages in order (load, design, diagnose, estimate, resample). No printing,
-no files written."""
+"""audit(): detects the design and runs the stages in order (load, design, diagnose, estimate,
+resample). No printing, no files written."""
 
 from __future__ import annotations
 
+import itertools
 import os
 import warnings
 from collections.abc import Callable
 
 import numpy as np
+from scipy import stats
 
-from auditor import __version__, diagnostics
-from auditor.design import TwoGroups, parse_group_list, two_groups
-from auditor.effects import EffectSpec, two_group_effects
-from auditor.parametric import Estimate
+from auditor import __version__, diagnostics, kgroups, paired
+from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
+                            parse_group_list, wide_repeated)
+from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
+                             paired_effects, two_group_effects)
 from auditor.errors import DesignError, UndefinedEffectWarning
-from auditor.load import Table, read_table
+from auditor.load import Table, column_position, read_table
+from auditor.parametric import Estimate
 from auditor.rationale import CAUTION
-from auditor.resampling import bca_interval, bootstrap_replicates, leave_one_out
-from auditor.results import AuditResult, Diagnostics, Effect, Settings
+from auditor.resampling import bca_interval, leave_one_out_units, resample_units
+from auditor.results import AuditResult, Diagnostics, Effect, PairComparison, Settings
 
 DEFAULT_SEED = 20240917
 DEFAULT_RESAMPLES = 2000
 DEFAULT_LEVEL = 0.95
 
+Progress = Callable[[int, int], None] | None
+
 
 def table_from_frame(frame, columns: list[str], name: str = "<data frame>") -> Table:
     """Wrap a pandas DataFrame as a Table; row i gets line i + 2 (as if written with a header)."""
-    from auditor.load import column_position
-
     header = tuple(str(c) for c in frame.columns)
     positions = {c: column_position(header, c, name) for c in dict.fromkeys(columns)}
     cols = {}
@@ -39,39 +43,52 @@ def table_from_frame(frame, columns: list[str], name: str = "<data frame>") -> T
     return Table(name, header, cols, np.arange(2, len(frame) + 2, dtype=np.int64), 0, "in memory", None)
 
 
-def audit(data, *, outcome: str, group: str, groups: list[str] | str | None = None,
+def audit(data, *, outcome: str | None = None, group: str | None = None,
+          groups: list[str] | str | None = None, subject: str | None = None,
+          paired_columns: list[str] | str | None = None,
           level: float = DEFAULT_LEVEL, resamples: int = DEFAULT_RESAMPLES,
           seed: int = DEFAULT_SEED, reference: str | None = None,
-          progress: Callable[[int, int], None] | None = None) -> AuditResult:
-    """Audit a comparison of two independent groups.
+          progress: Progress = None) -> AuditResult:
+    """Audit a comparison of groups or conditions.
 
-    `data` is a path (CSV, TSV, .xlsx) or a pandas DataFrame in long format; `groups` picks and
-    orders two levels (A, B); every signed effect is A relative to B. `reference` names the
-    group whose SD scales Glass's delta (default B). The bootstrap uses
-    `numpy.random.default_rng(seed)`; the seed is recorded in the result.
+    The design follows from the arguments:
+    - `outcome` + `group`: two independent groups (two levels) or k independent groups (more);
+    - `outcome` + `group` + `subject` (long) or `paired_columns` (wide, one row per participant):
+      paired (two conditions) or k repeated conditions (more).
+    `data` is a path (CSV, TSV, .xlsx) or a pandas DataFrame. `groups` picks and orders levels;
+    in two-condition designs every signed effect is the first relative to the second.
+    `reference` names the group whose SD scales Glass's delta (default the second). The bootstrap
+    uses `numpy.random.default_rng(seed)`; the seed is recorded in the result.
     """
     level, resamples = _check_settings(level, resamples, seed)
     chosen = parse_group_list(groups) if isinstance(groups, str) else groups
-    if isinstance(data, (str, os.PathLike)):
-        table = read_table(data, [outcome, group])
+    wide = (parse_group_list(paired_columns, "--paired") if isinstance(paired_columns, str)
+            else paired_columns)
+    if wide is not None:
+        if group is not None or chosen is not None:
+            raise DesignError("--paired names the condition columns of a wide file; do not also"
+                              " give --group or --groups")
+        columns = list(wide) + ([subject] if subject else [])
+    elif outcome is None or group is None:
+        raise DesignError("name the outcome and the group columns (--outcome, --group), or the"
+                          " condition columns of a wide file (--paired BEFORE,AFTER)")
     else:
-        table = table_from_frame(data, [outcome, group])
-    design = two_groups(table, outcome, group, chosen)
-    ref_index = _reference_index(design, reference)
-    rng = np.random.default_rng(seed)
-    a, b = design.a, design.b
-
-    groups_summary = tuple(diagnostics.describe(lab, x, miss)
-                           for lab, x, miss in zip(design.labels, design.values, design.missing))
-    specs = two_group_effects(ref_index)
-    effects, notes = _estimate_all(specs, a, b, level, resamples, rng, progress)
-    diag = _diagnose(design, effects)
-    return AuditResult(
-        design="two_independent", outcome=outcome, group_column=group, groups=groups_summary,
-        data=design.account, diagnostics=diag, effects=effects,
-        settings=Settings(level, resamples, int(seed), design.labels[ref_index]),
-        caution=CAUTION, tool_version=__version__, warnings=tuple(notes),
-    )
+        columns = [outcome, group] + ([subject] if subject else [])
+    table = (read_table(data, columns) if isinstance(data, (str, os.PathLike))
+             else table_from_frame(data, columns))
+    settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress)
+    if wide is not None:
+        design = wide_repeated(table, list(wide), subject)
+        return _audit_repeated(design, outcome or design.outcome, **settings)
+    if subject is not None:
+        return _audit_repeated(long_repeated(table, outcome, group, subject, chosen), outcome,
+                               **settings)
+    design = independent_groups(table, outcome, group, chosen)
+    if len(design.labels) == 2:
+        return _audit_two_groups(design, reference, **settings)
+    if reference is not None:
+        raise DesignError("--reference applies to two independent groups only")
+    return _audit_k_groups(design, **settings)
 
 
 def _check_settings(level: float, resamples: int, seed: int) -> tuple[float, int]:
@@ -85,21 +102,157 @@ def _check_settings(level: float, resamples: int, seed: int) -> tuple[float, int
     return level, int(resamples)
 
 
-def _reference_index(design: TwoGroups, reference: str | None) -> int:
+def _reference_index(labels: tuple[str, ...], reference: str | None) -> int:
     if reference is None:
         return 1
-    if reference not in design.labels:
+    if reference not in labels:
         raise DesignError(
             f"--reference '{reference}' is not one of the compared groups"
-            f" ('{design.labels[0]}', '{design.labels[1]}')"
+            f" ('{labels[0]}', '{labels[1]}')"
         )
-    return design.labels.index(reference)
+    return labels.index(reference)
 
 
-def _estimate_all(specs: tuple[EffectSpec, ...], a, b, level, resamples, rng, progress):
-    estimates = {s.name: _guarded(s, a, b, level) for s in specs}
+def _summaries(labels, values, missing=None):
+    missing = missing or (0,) * len(labels)
+    return tuple(diagnostics.describe(lab, x, m) for lab, x, m in zip(labels, values, missing))
+
+
+def _result(design, outcome, group_column, summaries, account, diag, effects, notes, settings,
+            reference=None, subject=None, tests=None, pairwise=()):
+    return AuditResult(
+        design=design, outcome=outcome, group_column=group_column, groups=summaries,
+        data=account, diagnostics=diag, effects=effects,
+        settings=Settings(settings["level"], settings["resamples"], settings["seed"], reference),
+        caution=CAUTION, tool_version=__version__, warnings=tuple(notes),
+        subject_column=subject, tests=tests or {}, pairwise=tuple(pairwise),
+    )
+
+
+# ------------------------------------------------------------------ designs
+
+
+def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress):
+    ref_index = _reference_index(design.labels, reference)
+    a, b = design.a, design.b
+    effects, notes = estimate_all(two_group_effects(ref_index), (a, b), level, resamples,
+                                  np.random.default_rng(seed), progress)
+    return _result("two_independent", design.outcome, design.group_column,
+                   _summaries(design.labels, design.values, design.missing), design.account,
+                   _diagnose_two(design, effects), effects, notes,
+                   dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index])
+
+
+def _audit_k_groups(design: Groups, *, level, resamples, seed, progress):
+    groups = design.values
+    pairs = list(itertools.combinations(range(len(groups)), 2))
+    rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    effects, notes = estimate_all(k_independent_effects(), groups, level, resamples, rngs[0],
+                                  progress)
+    comparisons, dunn_p = [], []
+    for (i, j), rng in zip(pairs, rngs[1:]):
+        pair_effects, pair_notes = estimate_all(two_group_effects(1), (groups[i], groups[j]),
+                                                level, resamples, rng, None)
+        z, p = kgroups.dunn_z(groups, i, j)
+        dunn_p.append(None if not np.isfinite(p) else p)
+        comparisons.append((i, j, pair_effects, None if not np.isfinite(z) else z))
+        notes += [f"{design.labels[i]} vs {design.labels[j]}: {n}" for n in pair_notes]
+    holm = kgroups.holm(dunn_p)
+    pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
+                for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
+    diag = diagnostics.k_screen(design.labels, groups, design.rows)
+    return _result("k_independent", design.outcome, design.group_column,
+                   _summaries(design.labels, groups, design.missing), design.account, diag,
+                   effects, notes, dict(level=level, resamples=resamples, seed=seed),
+                   tests=kgroups.independent_tests(groups), pairwise=pairwise)
+
+
+def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress):
+    x = design.matrix
+    digits = paired.difference_digits(x, design.decimals)
+    labels = design.labels
+    columns = tuple(x[:, k] for k in range(x.shape[1]))
+    settings = dict(level=level, resamples=resamples, seed=seed)
+    if x.shape[1] == 2:
+        effects, notes = estimate_all(paired_effects(digits), (x,), level, resamples,
+                                      np.random.default_rng(seed), progress)
+        d = paired.differences(x, digits)
+        diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
+                                         design.rows, digits, paired.sign_test(d))
+        tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
+                 "paired_t": _paired_t(x[:, 0], x[:, 1])}
+        return _result("paired", outcome, design.group_column, _summaries(labels, columns),
+                       design.account, diag, effects, notes, settings,
+                       subject=design.subject_column, tests=tests)
+    pairs = list(itertools.combinations(range(x.shape[1]), 2))
+    rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    effects, notes = estimate_all(k_repeated_effects(), (x,), level, resamples, rngs[0], progress)
+    comparisons, wil_p = [], []
+    for (i, j), rng in zip(pairs, rngs[1:]):
+        sub = x[:, [i, j]]
+        pair_effects, pair_notes = estimate_all(paired_effects(digits), (sub,), level, resamples,
+                                                rng, None)
+        w = _wilcoxon(paired.differences(sub, digits))
+        wil_p.append(w["p"])
+        comparisons.append((i, j, pair_effects, w["statistic"]))
+        notes += [f"{labels[i]} vs {labels[j]}: {n}" for n in pair_notes]
+    holm = kgroups.holm(wil_p)
+    pairwise = [PairComparison(labels[i], labels[j], eff, "wilcoxon_signed_rank", stat, p, ph)
+                for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
+    sphericity = kgroups.mauchly(x)
+    diag = diagnostics.k_screen(labels, columns, (design.rows,) * x.shape[1], sphericity)
+    return _result("k_repeated", outcome, design.group_column, _summaries(labels, columns),
+                   design.account, diag, effects, notes, settings,
+                   subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
+                   pairwise=pairwise)
+
+
+def _wilcoxon(d: np.ndarray) -> dict:
+    """Wilcoxon signed-rank test on rounded differences, zeros dropped (scipy.stats.wilcoxon,
+    method chosen by scipy: exact for small samples without ties, else the normal approximation)."""
+    if np.all(d == 0):
+        return {"statistic": None, "p": None, "reason": "every difference is zero"}
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        res = stats.wilcoxon(d, zero_method="wilcox")
+    return {"statistic": float(res.statistic), "p": float(res.pvalue)}
+
+
+def _paired_t(a: np.ndarray, b: np.ndarray) -> dict:
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        res = stats.ttest_rel(a, b)
+    t, p = float(res.statistic), float(res.pvalue)
+    return {"statistic": t if np.isfinite(t) else None, "df": a.size - 1,
+            "p": p if np.isfinite(p) else None}
+
+
+# ------------------------------------------------------------------ estimation
+
+
+def _guarded(spec: EffectSpec, samples, level) -> Estimate:
+    """The effect's estimate, or null with a reason when the values overflow double precision."""
+    try:
+        with np.errstate(over="raise", invalid="ignore", divide="ignore"):
+            est = spec.estimate(*samples, level)
+    except (OverflowError, FloatingPointError):
+        return Estimate(None, None, "the values are too large for double precision arithmetic")
+    if est.value is not None and not np.isfinite(est.value):
+        return Estimate(None, None, "the estimate is not finite in double precision")
+    if est.interval is not None and not (np.isfinite(est.interval.low)
+                                         and np.isfinite(est.interval.high)):
+        return Estimate(est.value, None, None,
+                        est.notes + ("the analytic interval is not finite in double precision",))
+    return est
+
+
+def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...], level: float,
+                 resamples: int, rng: np.random.Generator, progress: Progress = None):
+    """Every effect in `specs` with its analytic interval and a BCa interval over shared
+    stratified resamples of `samples`. Returns (effects, notes about undefined effects)."""
+    estimates = {s.name: _guarded(s, samples, level) for s in specs}
     defined = {s.name: s.values for s in specs if estimates[s.name].value is not None}
-    replicates = bootstrap_replicates(defined, a, b, resamples, rng, progress)
+    replicates = resample_units(defined, samples, resamples, rng, progress)
     effects, notes = [], []
     for spec in specs:
         est = estimates[spec.name]
@@ -110,7 +263,7 @@ def _estimate_all(specs: tuple[EffectSpec, ...], a, b, level, resamples, rng, pr
             effects.append(Effect(spec.name, spec.family, None, None, None, "none", (),
                                   spec.null_value, spec.assumes, est.reason, est.notes))
             continue
-        loo = leave_one_out(spec.values, a, b)
+        loo = leave_one_out_units(spec.values, samples)
         boot = bca_interval(est.value, replicates[spec.name], loo, level, spec.bounds)
         intervals = tuple(iv for iv in (est.interval, boot.interval) if iv is not None)
         primary = est.interval if est.interval is not None else boot.interval
@@ -124,25 +277,9 @@ def _estimate_all(specs: tuple[EffectSpec, ...], a, b, level, resamples, rng, pr
     return tuple(effects), notes
 
 
-def _guarded(spec: EffectSpec, a, b, level) -> Estimate:
-    """The effect's estimate, or null with a reason when the values overflow double precision."""
-    try:
-        with np.errstate(over="raise", invalid="ignore", divide="ignore"):
-            est = spec.estimate(a, b, level)
-    except (OverflowError, FloatingPointError):
-        return Estimate(None, None, "the values are too large for double precision arithmetic")
-    if est.value is not None and not np.isfinite(est.value):
-        return Estimate(None, None, "the estimate is not finite in double precision")
-    if est.interval is not None and not (np.isfinite(est.interval.low)
-                                         and np.isfinite(est.interval.high)):
-        return Estimate(est.value, None, None,
-                        est.notes + ("the analytic interval is not finite in double precision",))
-    return est
-
-
-def _diagnose(design: TwoGroups, effects: tuple[Effect, ...]) -> Diagnostics:
+def _diagnose_two(design: Groups, effects: tuple[Effect, ...]) -> Diagnostics:
     a, b = design.a, design.b
-    labels = design.labels
+    labels = (design.labels[0], design.labels[1])
     pooled = np.concatenate([a, b])
     residuals = np.concatenate([a - a.mean(), b - b.mean()])
     normality = tuple(diagnostics.normality(lab, x) for lab, x in zip(labels, (a, b))) + (

@@ -39,13 +39,83 @@ def lines_list(rows, limit: int = 8) -> str:
     return shown + (f" and {len(rows) - limit} more" if len(rows) > limit else "")
 
 
+_TITLES = {
+    "two_independent": "Two independent groups",
+    "paired": "Paired conditions (same participants)",
+    "k_independent": "Independent groups",
+    "k_repeated": "Repeated conditions (same participants)",
+}
+_PAIR_COLUMNS = {
+    "k_independent": ("cliff_delta", "hedges_g"),
+    "k_repeated": ("matched_rank_biserial", "d_z"),
+}
+
+
 def terminal_summary(result: AuditResult) -> str:
     """A compact summary for the terminal: data accounting, screening, effects, caution."""
-    g_a, g_b = result.groups
-    d = result.data
     out: list[str] = []
-    out.append(f"Two independent groups; outcome '{result.outcome}' by '{result.group_column}'")
-    out.append(f"Direction: A = '{g_a.label}' relative to B = '{g_b.label}'")
+    by = f" by '{result.group_column}'" if result.group_column else ""
+    out.append(f"{_TITLES[result.design]}; outcome '{result.outcome}'{by}"
+               + (f"; participants by '{result.subject_column}'" if result.subject_column else ""))
+    labels = [g.label for g in result.groups]
+    if len(labels) == 2:
+        out.append(f"Direction: A = '{labels[0]}' relative to B = '{labels[1]}'")
+    _accounting(result, out)
+    _group_table(result, out)
+    out.append("Screening")
+    if result.design == "two_independent":
+        _screen_two(result, out)
+    elif result.design == "paired":
+        _screen_paired(result, out)
+    else:
+        _screen_k(result, out)
+    out.append("")
+    _effect_table(result.effects, result.settings.level, out,
+                  "Effect sizes, A relative to B" if len(labels) == 2 else "Omnibus effect sizes")
+    if result.tests:
+        out.append("Tests")
+        for name, t in result.tests.items():
+            if name == "sign_test":
+                out.append(f"  sign test: {t['positive']} up, {t['negative']} down,"
+                           f" {t['zero']} zero; exact p {pval(t['p'])}")
+                continue
+            df = t.get("df")
+            df_text = ("" if df is None else
+                       f", df {', '.join(num(v, 2) for v in df)}" if isinstance(df, list)
+                       else f", df {df}")
+            extra = ("" if "p_greenhouse_geisser" not in t else
+                     f" (Greenhouse-Geisser p {pval(t['p_greenhouse_geisser'])})")
+            out.append(f"  {name.replace('_', ' ')}: statistic {num(t.get('statistic'))}"
+                       f"{df_text}, p {pval(t.get('p'))}{extra}")
+        out.append("")
+    if result.pairwise:
+        first, second = _PAIR_COLUMNS[result.design]
+        out.append(f"Pairs (first relative to second; Holm-adjusted p of"
+                   f" {result.pairwise[0].test.replace('_', ' ')})")
+        out.append(f"  {'pair':<30} {first:>22} {'interval':<18} {second:>10} {'interval':<18}"
+                   f" {'p (Holm)':>9}")
+        for pc in result.pairwise:
+            cells = []
+            for name in (first, second):
+                e = next(e for e in pc.effects if e.name == name)
+                ci = f"[{num(e.ci_low)}, {num(e.ci_high)}]" if e.ci_low is not None else "n/a"
+                cells.append((num(e.estimate), ci))
+            out.append(f"  {pc.first + ' vs ' + pc.second:<30} {cells[0][0]:>22} {cells[0][1]:<18}"
+                       f" {cells[1][0]:>10} {cells[1][1]:<18} {pval(pc.p_holm):>9}")
+        out.append("")
+    st = result.settings
+    unit = "participants" if result.design in ("paired", "k_repeated") else "values within each group"
+    out.append(f"Bootstrap: {st.bootstrap_resamples} resamples of {unit}, seed {st.seed}."
+               + (f" Glass's delta uses the SD of '{st.reference}'." if st.reference else ""))
+    for w in result.warnings:
+        out.append(f"Note: {w}")
+    out.append("")
+    out.append(result.caution)
+    return "\n".join(out) + "\n"
+
+
+def _accounting(result: AuditResult, out: list[str]) -> None:
+    d = result.data
     other = sum(d.not_selected.values())
     out.append(f"Rows: {d.rows_read} read, {d.rows_used} used, {len(d.excluded)} excluded"
                + (f", {other} in other groups" if other else ""))
@@ -54,7 +124,10 @@ def terminal_summary(result: AuditResult) -> str:
     if len(d.excluded) > 5:
         out.append(f"  ... {len(d.excluded) - 5} more in the JSON 'data.excluded' list")
     out.append("")
-    width = max(8, len(g_a.label), len(g_b.label))
+
+
+def _group_table(result: AuditResult, out: list[str]) -> None:
+    width = max([8] + [len(g.label) for g in result.groups])
     out.append(f"{'group':<{width}} {'n':>6} {'mean':>10} {'SD':>10} {'median':>10}"
                f" {'Q1':>10} {'Q3':>10} {'min':>10} {'max':>10}")
     for g in result.groups:
@@ -62,12 +135,18 @@ def terminal_summary(result: AuditResult) -> str:
                    f" {num(g.median):>10} {num(g.q1):>10} {num(g.q3):>10} {num(g.min):>10}"
                    f" {num(g.max):>10}")
     out.append("")
+
+
+def _shape(nm) -> str:
+    return (f"  shape of {nm.label}: Shapiro-Wilk p {pval(nm.shapiro_p)},"
+            f" skewness {num(nm.skewness, 2)} (SE {num(nm.skewness_se, 2)}),"
+            f" excess kurtosis {num(nm.excess_kurtosis, 2)} (SE {num(nm.kurtosis_se, 2)})")
+
+
+def _screen_two(result: AuditResult, out: list[str]) -> None:
     diag = result.diagnostics
-    out.append("Screening")
     for nm in diag.normality[:2]:
-        out.append(f"  shape of {nm.label}: Shapiro-Wilk p {pval(nm.shapiro_p)},"
-                   f" skewness {num(nm.skewness, 2)} (SE {num(nm.skewness_se, 2)}),"
-                   f" excess kurtosis {num(nm.excess_kurtosis, 2)} (SE {num(nm.kurtosis_se, 2)})")
+        out.append(_shape(nm))
     sp = diag.spread
     out.append(f"  spread: SD ratio {num(sp.sd_ratio, 2)} (larger in '{sp.larger_sd_group}'"
                + (", the smaller group" if sp.smaller_group_has_larger_sd else "") + "),"
@@ -80,24 +159,49 @@ def terminal_summary(result: AuditResult) -> str:
     nt = diag.normal_theory
     out.append(f"  normal model: d implies A = {num(nt.implied_prob_superiority)};"
                f" observed A = {num(nt.observed_prob_superiority)}")
-    out.append("")
-    pct = f"{100 * result.settings.level:g}%"
-    out.append(f"Effect sizes, A relative to B ({pct} intervals)")
-    out.append(f"  {'index':<17} {'estimate':>9}  {'interval':<22} {'method':<28} {'bootstrap BCa':<22}")
-    for e in result.effects:
+
+
+def _screen_paired(result: AuditResult, out: list[str]) -> None:
+    diag = result.diagnostics
+    out.append(_shape(diag.differences_normality))
+    t = diag.differences_ties
+    out.append(f"  differences rounded to {diag.rounding_decimals} decimals;"
+               f" {num(100 * diag.zero_share, 1)}% are zero; {num(100 * t.tie_fraction, 1)}% tied")
+    out.append(f"  correlation of the conditions: r = {num(diag.correlation)}")
+    out.append(f"  extreme differences (lines): {lines_list(diag.differences_outliers.rows)}")
+
+
+def _screen_k(result: AuditResult, out: list[str]) -> None:
+    diag = result.diagnostics
+    for nm in diag.normality:
+        out.append(_shape(nm))
+    sp = diag.spread
+    out.append(f"  spread: largest/smallest SD {num(sp.sd_ratio, 2)} ('{sp.largest_sd_group}' /"
+               f" '{sp.smallest_sd_group}'), Levene p {pval(sp.levene_p)},"
+               f" Brown-Forsythe p {pval(sp.brown_forsythe_p)}")
+    t = diag.ties
+    out.append(f"  ties: {num(100 * t.tie_fraction, 1)}% of values tied, {t.distinct_values}"
+               f" distinct" + ("; looks discrete" if t.looks_discrete else ""))
+    if result.design == "k_independent":
+        for o in diag.outliers:
+            out.append(f"  extreme cases in '{o.label}' (lines): {lines_list(o.rows)}")
+    if diag.sphericity is not None:
+        sph = diag.sphericity
+        out.append(f"  sphericity: Mauchly W {num(sph.get('w'))}, p {pval(sph.get('p'))},"
+                   f" Greenhouse-Geisser epsilon {num(sph.get('epsilon_gg'))}")
+
+
+def _effect_table(effects, level: float, out: list[str], title: str) -> None:
+    out.append(f"{title} ({100 * level:g}% intervals)")
+    width = max([17] + [len(e.name) for e in effects])
+    out.append(f"  {'index':<{width}} {'estimate':>9}  {'interval':<22} {'method':<28}"
+               f" {'bootstrap BCa':<22}")
+    for e in effects:
         if e.estimate is None:
-            out.append(f"  {e.name:<17} {'n/a':>9}  {e.reason}")
+            out.append(f"  {e.name:<{width}} {'n/a':>9}  {e.reason}")
             continue
         ci = f"[{num(e.ci_low)}, {num(e.ci_high)}]" if e.ci_low is not None else "n/a"
         boot = e.interval("bca_bootstrap")
         bci = f"[{num(boot.low)}, {num(boot.high)}]" if boot is not None else "n/a"
-        out.append(f"  {e.name:<17} {num(e.estimate):>9}  {ci:<22} {e.ci_method:<28} {bci:<22}")
+        out.append(f"  {e.name:<{width}} {num(e.estimate):>9}  {ci:<22} {e.ci_method:<28} {bci:<22}")
     out.append("")
-    s = result.settings
-    out.append(f"Bootstrap: {s.bootstrap_resamples} stratified resamples, seed {s.seed}."
-               f" Glass's delta uses the SD of '{s.reference}'.")
-    for w in result.warnings:
-        out.append(f"Note: {w}")
-    out.append("")
-    out.append(result.caution)
-    return "\n".join(out) + "\n"

@@ -171,6 +171,47 @@ class Diagnostics(_Plain):
         return out
 
 
+@dataclass(frozen=True)
+class PairedDiagnostics(_Plain):
+    """Screening of paired data: the differences carry the assumptions."""
+
+    differences_normality: Normality
+    conditions_normality: tuple[Normality, ...]
+    differences_ties: Ties
+    differences_outliers: Outliers
+    zero_share: float
+    correlation: float | None
+    correlation_p: float | None
+    rounding_decimals: int
+    sign_test: dict
+
+
+@dataclass(frozen=True)
+class KSpread(_Plain):
+    sd_ratio: float | None
+    largest_sd_group: str
+    smallest_sd_group: str
+    levene_w: float | None
+    levene_p: float | None
+    brown_forsythe_w: float | None
+    brown_forsythe_p: float | None
+    fligner_x2: float | None
+    fligner_p: float | None
+    n_ratio: float
+    notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class KDiagnostics(_Plain):
+    """Screening of three or more groups or conditions."""
+
+    normality: tuple[Normality, ...]
+    spread: KSpread
+    ties: Ties
+    outliers: tuple[Outliers, ...]
+    sphericity: dict | None = None
+
+
 # ---------------------------------------------------------------- effects
 
 
@@ -217,11 +258,30 @@ class Effect(_Plain):
 
 
 @dataclass(frozen=True)
+class PairComparison(_Plain):
+    """One pair of groups or conditions after an omnibus audit: the two-condition effects
+    (first relative to second) and the follow-up test with its Holm-adjusted p."""
+
+    first: str
+    second: str
+    effects: tuple[Effect, ...]
+    test: str
+    statistic: float | None
+    p: float | None
+    p_holm: float | None
+
+    def to_dict(self) -> dict[str, Any]:
+        out = plain(self)
+        out["effects"] = {e.name: plain(e) for e in self.effects}
+        return out
+
+
+@dataclass(frozen=True)
 class Settings(_Plain):
     level: float
     bootstrap_resamples: int
     seed: int
-    reference: str
+    reference: str | None = None
 
 
 @dataclass(frozen=True)
@@ -230,16 +290,27 @@ class AuditResult(_Plain):
 
     design: str
     outcome: str
-    group_column: str
+    group_column: str | None
     groups: tuple[GroupSummary, ...]
     data: DataAccount
-    diagnostics: Diagnostics
+    diagnostics: Diagnostics | PairedDiagnostics | KDiagnostics
     effects: tuple[Effect, ...]
     settings: Settings
     caution: str
     tool_version: str
     schema_version: str = SCHEMA_VERSION
     warnings: tuple[str, ...] = field(default=())
+    subject_column: str | None = None
+    tests: dict = field(default_factory=dict)
+    pairwise: tuple[PairComparison, ...] = ()
+
+    @property
+    def direction(self) -> str:
+        labels = [g.label for g in self.groups]
+        if len(labels) == 2:
+            return f"{labels[0]} relative to {labels[1]}"
+        return ("omnibus across " + ", ".join(labels)
+                + "; in each pair, the first named relative to the second")
 
     def effect(self, name: str) -> Effect:
         for e in self.effects:
@@ -254,11 +325,14 @@ class AuditResult(_Plain):
             "design": self.design,
             "outcome": self.outcome,
             "group_column": self.group_column,
-            "direction": f"{self.groups[0].label} relative to {self.groups[1].label}",
+            "subject_column": self.subject_column,
+            "direction": self.direction,
             "groups": plain(self.groups),
             "data": plain(self.data),
             "diagnostics": self.diagnostics.to_dict(),
             "effects": {e.name: plain(e) for e in self.effects},
+            "tests": plain(self.tests),
+            "pairwise": [p.to_dict() for p in self.pairwise],
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

@@ -114,10 +114,12 @@ def test_only_one_group_level(run_cli, write_file):
     assert_one_line_error(res, "1 group level", "'serif'")
 
 
-def test_three_levels_without_groups(run_cli, write_file):
+def test_three_levels_without_groups_is_a_k_group_audit(audit_json, write_file):
     path = write_file("three.csv", READING + "mono,201\nmono,207\nmono,199\n")
-    res = run_cli(*check_args(path))
-    assert_one_line_error(res, "3 levels", "'serif'", "'sans'", "'mono'", "--groups")
+    doc = audit_json(path, "words_per_min", "font")
+    assert doc["design"] == "k_independent"
+    assert [g["label"] for g in doc["groups"]] == ["serif", "sans", "mono"]
+    assert len(doc["pairwise"]) == 3
 
 
 def test_three_levels_with_groups_selects_two(audit_json, write_file):
@@ -132,7 +134,7 @@ def test_groups_naming_an_unknown_level(run_cli, reading_csv):
     assert_one_line_error(res, "no level 'sanz'", "did you mean 'sans'")
 
 
-@pytest.mark.parametrize("value", ["serif", "serif,sans,mono", "serif,,sans", "serif,serif"])
+@pytest.mark.parametrize("value", ["serif", "serif,,sans", "serif,serif"])
 def test_groups_must_name_two_distinct_levels(run_cli, reading_csv, value):
     res = run_cli(*check_args(reading_csv, "--groups", value))
     assert_one_line_error(res, "--groups")
@@ -529,12 +531,12 @@ def _run(args, cwd, **kwargs):
 
 
 @pytest.mark.parametrize("case,expected", [
-    ("missing_file", 1), ("unknown_column", 1), ("bad_level", 1), ("three_levels", 1),
+    ("missing_file", 1), ("unknown_column", 1), ("bad_level", 1), ("thin_third_level", 1),
     ("unknown_option", 2), ("not_numeric_boot", 2), ("binary_file", 1),
 ])
 def test_module_bad_inputs_never_show_a_traceback(tmp_path, reading_csv, case, expected):
     three = tmp_path / "three.csv"
-    three.write_text(READING + "mono,201\nmono,207\n")
+    three.write_text(READING + "mono,201\n")  # a third level with a single value
     binary = tmp_path / "picture.csv"
     binary.write_bytes(b"\x89PNG\r\n\x1a\n\x00\x00\x00\rIHDR")
     base = ["--outcome", "words_per_min", "--group", "font", "--boot", "200"]
@@ -542,7 +544,7 @@ def test_module_bad_inputs_never_show_a_traceback(tmp_path, reading_csv, case, e
         "missing_file": ["check", str(tmp_path / "absent.csv"), *base],
         "unknown_column": ["check", str(reading_csv), "--outcome", "speed", "--group", "font"],
         "bad_level": ["check", str(reading_csv), *base, "--level", "2"],
-        "three_levels": ["check", str(three), *base],
+        "thin_third_level": ["check", str(three), *base],
         "unknown_option": ["check", str(reading_csv), *base, "--fast"],
         "not_numeric_boot": ["check", str(reading_csv), *base[:4], "--boot", "lots"],
         "binary_file": ["check", str(binary), *base],
