@@ -60,6 +60,19 @@ def make_demo_frame(seed: int = DEMO_SEED):
     return frame
 
 
+def demo_audits() -> list[tuple[str, dict]]:
+    """The demo's audits: (name, options for `audit`). Every two-group outcome compares buddy
+    relative to solo; then the riders' confidence before relative to after (paired), and weekly
+    distance across the three route types (k independent groups)."""
+    audits = [(outcome, dict(outcome=outcome, group="scheme", groups=["buddy", "solo"]))
+              for outcome in DEMO_OUTCOMES]
+    audits.append(("confidence_before_after",
+                   dict(paired_columns=["confidence_before", "confidence_after"],
+                        subject="rider_id", outcome="confidence")))
+    audits.append(("weekly_km_by_route", dict(outcome="weekly_km", group="route_type")))
+    return audits
+
+
 def demo_data_path() -> Path | None:
     """The committed demo CSV when running from the repository, else None."""
     candidate = Path(__file__).resolve().parent.parent / "demo" / DEMO_FILE
@@ -67,7 +80,7 @@ def demo_data_path() -> Path | None:
 
 
 def run_demo(out: Path, echo: Callable[[str], None] = print) -> int:
-    """Audit every demo outcome (buddy relative to solo) and write one JSON per outcome."""
+    """Run every demo audit and write one JSON per audit into `out`."""
     import warnings
 
     from auditor.errors import AuditError
@@ -80,16 +93,16 @@ def run_demo(out: Path, echo: Callable[[str], None] = print) -> int:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise AuditError(f"{out}: cannot create the output folder ({exc.strerror or exc})") from None
-    for outcome in DEMO_OUTCOMES:
+    for name, options in demo_audits():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            result = audit(data, outcome=outcome, group="scheme", groups=["buddy", "solo"])
-        target = out / f"{outcome}.json"
+            result = audit(data, **options)
+        target = out / f"{name}.json"
         try:
             target.write_text(to_json(result), encoding="utf-8")
         except OSError as exc:
             raise AuditError(f"{target}: cannot write ({exc.strerror or exc})") from None
-        echo(f"=== {outcome} ===")
+        echo(f"=== {name} ===")
         echo(terminal_summary(result))
         echo(f"(written to {target})")
     return 0

@@ -6,7 +6,7 @@ import io
 import json
 
 from auditor.cli import main
-from auditor.demo import DEMO_OUTCOMES, demo_data_path, make_demo_frame
+from auditor.demo import demo_audits, demo_data_path, make_demo_frame
 
 
 def test_committed_csv_is_what_the_seeded_generator_writes():
@@ -19,10 +19,16 @@ def test_committed_csv_is_what_the_seeded_generator_writes():
 
 def test_demo_command_writes_a_json_per_outcome(tmp_path, capsys):
     assert main(["demo", "--out", str(tmp_path)]) == 0
-    for outcome in DEMO_OUTCOMES:
-        doc = json.loads((tmp_path / f"{outcome}.json").read_text(encoding="utf-8"))
-        assert doc["outcome"] == outcome
-        assert doc["data"]["rows_read"] == doc["data"]["rows_used"] + len(doc["data"]["excluded"])
+    designs = {}
+    for name, options in demo_audits():
+        doc = json.loads((tmp_path / f"{name}.json").read_text(encoding="utf-8"))
+        designs[name] = doc["design"]
+        data = doc["data"]
+        assert data["rows_read"] == (data["rows_used"] + len(data["excluded"])
+                                     + sum(data["not_selected"].values()))
+    assert designs["confidence_before_after"] == "paired"
+    assert designs["weekly_km_by_route"] == "k_independent"
+    assert designs["weekly_km"] == "two_independent"
     # the planted extreme case is named by its line in the file
     repair = json.loads((tmp_path / "repair_spend.json").read_text(encoding="utf-8"))
     frame = make_demo_frame()
