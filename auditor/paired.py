@@ -216,8 +216,9 @@ def ps_dep(a, b, level, digits=12) -> Estimate:
     notes = [f"ties discarded: N+/(N - N0) = {pos}/{n - zero}"
              + (f" = {discarded:.4f}" if discarded is not None else " (undefined: all zero)"),
              f"zero differences: {zero} of {n}, counted one half each"]
+    details = {"ties_discarded": discarded, "n_positive": pos, "n_zero": zero, "n": n}
     return Estimate(p, Interval("wilson", max(0.0, centre - half), min(1.0, centre + half), level),
-                    None, tuple(notes))
+                    None, tuple(notes), details)
 
 
 def r_from_z(a, b, level, digits=12) -> Estimate:
@@ -228,7 +229,8 @@ def r_from_z(a, b, level, digits=12) -> Estimate:
     if not math.isfinite(value):
         return Estimate(None, None, "every difference is zero: the signed-rank z is undefined")
     n = int(np.sum(d != 0))
-    return Estimate(value, None, None, (f"N = {n} non-zero differences of {d.size} pairs",))
+    return Estimate(value, None, None, (f"N = {n} non-zero differences of {d.size} pairs",),
+                    {"n_used": n, "n_pairs": int(d.size)})
 
 
 def signed_rank_null_pmf(n: int) -> np.ndarray:

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import optimize, special, stats
@@ -36,6 +36,7 @@ class Estimate:
     interval: Interval | None
     reason: str | None = None
     notes: tuple[str, ...] = ()
+    details: dict = field(default_factory=dict)  # named numbers reported beside the estimate
 
     @property
     def estimate(self) -> float | None:

@@ -272,7 +272,7 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             spec.name, spec.family, float(est.value),
             None if primary is None else primary.low, None if primary is None else primary.high,
             "none" if primary is None else primary.method, intervals, spec.null_value,
-            spec.assumes, None, est.notes + extra,
+            spec.assumes, None, est.notes + extra, dict(est.details),
         ))
     return tuple(effects), notes
 

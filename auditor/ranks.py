@@ -333,4 +333,5 @@ def r_from_z(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     value = float(r_from_z_values(a, b))
     if not math.isfinite(value):
         return Estimate(None, None, "all values are tied: the Mann-Whitney z is undefined")
-    return Estimate(value, None, None, (f"N = {a.size + b.size} (both groups)",))
+    return Estimate(value, None, None, (f"N = {a.size + b.size} (both groups)",),
+                    {"n_used": int(a.size + b.size)})

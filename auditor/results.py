@@ -246,6 +246,7 @@ class Effect(_Plain):
     assumes: str
     reason: str | None = None
     notes: tuple[str, ...] = ()
+    details: dict = field(default_factory=dict)
 
     def interval(self, method: str) -> Interval | None:
         for iv in self.intervals:
