@@ -32,12 +32,14 @@ Progress = Callable[[int, int], None] | None
 
 def table_from_frame(frame, columns: list[str], name: str = "<data frame>") -> Table:
     """Wrap a pandas DataFrame as a Table; row i gets line i + 2 (as if written with a header)."""
+    import pandas as pd
+
     header = tuple(str(c) for c in frame.columns)
     positions = {c: column_position(header, c, name) for c in dict.fromkeys(columns)}
     cols = {}
     for c, i in positions.items():
         series = frame.iloc[:, i]
-        cols[c] = tuple("" if v is None or (isinstance(v, float) and np.isnan(v))
+        cols[c] = tuple("" if v is None or (np.ndim(v) == 0 and pd.isna(v))
                         else (repr(float(v)) if isinstance(v, (float, np.floating)) else str(v))
                         for v in series.tolist())
     return Table(name, header, cols, np.arange(2, len(frame) + 2, dtype=np.int64), 0, "in memory", None)
@@ -208,8 +210,9 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
 
 
 def _wilcoxon(d: np.ndarray) -> dict:
-    """Wilcoxon signed-rank test on rounded differences, zeros dropped (scipy.stats.wilcoxon,
-    method chosen by scipy: exact for small samples without ties, else the normal approximation)."""
+    """Wilcoxon signed-rank test on rounded differences, zeros dropped (scipy.stats.wilcoxon with
+    its default method choice: exact or permutation for small samples, otherwise the normal
+    approximation)."""
     if np.all(d == 0):
         return {"statistic": None, "p": None, "reason": "every difference is zero"}
     with warnings.catch_warnings(), np.errstate(all="ignore"):
