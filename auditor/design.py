@@ -74,6 +74,8 @@ class Repeated:
     subjects: tuple[str, ...]
     decimals: int | None
     account: DataAccount
+    cell_rows: np.ndarray | None = None  # file line of each value, shape (n, k)
+    missing: tuple[int, ...] = ()  # per condition: participants left out for lacking it
 
     @property
     def kind(self) -> str:
@@ -226,6 +228,10 @@ def wide_repeated(table: Table, columns: list[str], subject: str | None = None) 
     participant), with the reason naming the column."""
     if len(columns) < 2:
         raise DesignError("--paired needs two or more columns, as BEFORE,AFTER")
+    if subject in columns:
+        raise DesignError(f"--subject '{subject}' is also one of the --paired columns; the"
+                          " participant id needs a column of its own")
+    missing = [0] * len(columns)
     parsed = [parse_numbers(table.columns[c], what=c) for c in columns]
     ids = ([s.strip() for s in table.columns[subject]] if subject
            else [str(int(line)) for line in table.lines])
@@ -241,6 +247,8 @@ def wide_repeated(table: Table, columns: list[str], subject: str | None = None) 
             excluded.append(Exclusion(line, f"{subject} (participant id) is empty"))
             continue
         problems = [reasons[i] for _, reasons in parsed if reasons[i] is not None]
+        for k, (_, reasons) in enumerate(parsed):
+            missing[k] += reasons[i] is not None
         if problems:
             excluded.append(Exclusion(line, "participant left out: " + "; ".join(problems)))
             continue
@@ -258,6 +266,8 @@ def wide_repeated(table: Table, columns: list[str], subject: str | None = None) 
         labels=tuple(columns), matrix=matrix, rows=table.lines[idx],
         subjects=tuple(ids[i] for i in keep), decimals=data_decimals(cells),
         account=_account(table, len(keep), excluded, {}),
+        cell_rows=np.repeat(table.lines[idx][:, None], len(columns), axis=1),
+        missing=tuple(missing),
     )
 
 
@@ -307,10 +317,14 @@ def long_repeated(table: Table, outcome: str, group: str, subject: str,
         if reasons[i] is not None:
             bad[ids[i]].append(f"{reasons[i]} (line {line})")
     complete: list[str] = []
+    missing = [0] * len(chosen)
     for pid, members in rows_of.items():
         have = {index[labels_all[i]] for i in members}
         problems = list(bad.get(pid, []))
         problems += [f"no row for '{chosen[k]}'" for k in range(len(chosen)) if k not in have]
+        for k in range(len(chosen)):
+            i = cell.get((pid, k))
+            missing[k] += i is None or reasons[i] is not None
         if problems:
             for i in members:
                 excluded.append(Exclusion(int(table.lines[i]),
@@ -328,6 +342,9 @@ def long_repeated(table: Table, outcome: str, group: str, subject: str,
         matrix=matrix, rows=first_lines, subjects=tuple(complete),
         decimals=data_decimals(used_cells),
         account=_account(table, len(complete) * len(chosen), excluded, not_selected),
+        cell_rows=np.array([[int(table.lines[cell[(pid, k)]]) for k in range(len(chosen))]
+                            for pid in complete], dtype=np.int64),
+        missing=tuple(missing),
     )
 
 

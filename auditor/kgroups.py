@@ -248,10 +248,13 @@ def mauchly(x: np.ndarray) -> dict:
     if tr <= 0:
         return {"w": None, "chi2": None, "df": None, "p": None, "epsilon_gg": None,
                 "note": "no variation in the differences between conditions"}
+    if n - 1 < p:
+        return {"w": None, "chi2": None, "df": None, "p": None, "epsilon_gg": greenhouse_geisser(x),
+                "note": "fewer participants than conditions: Mauchly's test is undefined"}
     w = float(np.linalg.det(t) / (tr / p) ** p)
-    if n - 1 < p or w <= 0:
-        return {"w": w, "chi2": None, "df": None, "p": None, "epsilon_gg": greenhouse_geisser(x),
-                "note": "too few participants for Mauchly's test"}
+    if w <= 0:
+        return {"w": 0.0, "chi2": None, "df": None, "p": None, "epsilon_gg": greenhouse_geisser(x),
+                "note": "the contrast covariance is singular: Mauchly's test is undefined"}
     f = 1 - (2 * p * p + p + 2) / (6 * p * (n - 1))
     chi2 = -(n - 1) * f * math.log(w)
     df = p * (p + 1) / 2 - 1

@@ -79,6 +79,9 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     table = (read_table(data, columns) if isinstance(data, (str, os.PathLike))
              else table_from_frame(data, columns))
     settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress)
+    if reference is not None and (wide is not None or subject is not None):
+        raise DesignError("--reference applies to two independent groups only (it names the"
+                          " group whose SD scales Glass's delta)")
     if wide is not None:
         design = wide_repeated(table, list(wide), subject)
         return _audit_repeated(design, outcome or design.outcome, **settings)
@@ -183,7 +186,8 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                                          design.rows, digits, paired.sign_test(d))
         tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
                  "paired_t": _paired_t(x[:, 0], x[:, 1])}
-        return _result("paired", outcome, design.group_column, _summaries(labels, columns),
+        return _result("paired", outcome, design.group_column,
+                       _summaries(labels, columns, design.missing),
                        design.account, diag, effects, notes, settings,
                        subject=design.subject_column, tests=tests)
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
@@ -202,8 +206,10 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
     pairwise = [PairComparison(labels[i], labels[j], eff, "wilcoxon_signed_rank", stat, p, ph)
                 for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
     sphericity = kgroups.mauchly(x)
-    diag = diagnostics.k_screen(labels, columns, (design.rows,) * x.shape[1], sphericity)
-    return _result("k_repeated", outcome, design.group_column, _summaries(labels, columns),
+    cell_rows = tuple(design.cell_rows[:, k] for k in range(x.shape[1]))
+    diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity)
+    return _result("k_repeated", outcome, design.group_column,
+                   _summaries(labels, columns, design.missing),
                    design.account, diag, effects, notes, settings,
                    subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
                    pairwise=pairwise)
