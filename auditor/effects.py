@@ -17,6 +17,7 @@ from functools import partial
 
 import numpy as np
 
+from auditor import jackknife as jk
 from auditor import kgroups, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
@@ -30,8 +31,9 @@ class EffectSpec:
     bounds: tuple[float, float] | None
     signed: bool  # True: negates when A and B swap; False: does not (probabilities map to 1 - value)
     assumes: str
-    estimate: Callable[[np.ndarray, np.ndarray, float], Estimate]
-    values: Callable[[np.ndarray, np.ndarray], np.ndarray]
+    estimate: Callable[..., Estimate]
+    values: Callable[..., np.ndarray]
+    leave_one_out: Callable[..., tuple[np.ndarray, ...]] | None = None  # exact fast path
 
 
 def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
@@ -43,31 +45,33 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
     return (
         EffectSpec("mean_difference", "mean", 0.0, None, True,
                    "interval: near-normal means (large n or normal data); unequal variances allowed",
-                   par.mean_difference, par.mean_difference_values),
+                   par.mean_difference, par.mean_difference_values, jk.mean_difference),
         EffectSpec("cohen_d", "standardized_mean", 0.0, None, True, normal_eq,
-                   par.cohen_d, par.cohen_d_values),
+                   par.cohen_d, par.cohen_d_values, jk.cohen_d),
         EffectSpec("hedges_g", "standardized_mean", 0.0, None, True,
-                   normal_eq + "; corrects d's small-sample bias", par.hedges_g, par.hedges_g_values),
+                   normal_eq + "; corrects d's small-sample bias", par.hedges_g, par.hedges_g_values,
+                   jk.hedges_g),
         EffectSpec("glass_delta", "standardized_mean", 0.0, None, True,
                    "normal data; only the reference group's SD scales the difference",
-                   glass_est, glass_val),
+                   glass_est, glass_val, partial(jk.glass_delta, reference=reference)),
         EffectSpec("d_unpooled", "standardized_mean", 0.0, None, True,
-                   "normal data; unequal variances allowed", par.d_unpooled, par.d_unpooled_values),
+                   "normal data; unequal variances allowed", par.d_unpooled, par.d_unpooled_values,
+                   jk.d_unpooled),
         EffectSpec("robust_d", "standardized_mean", 0.0, None, True,
                    "symmetric data with possible heavy tails or outliers (20% trimmed)",
                    par.robust_d, par.robust_d_values),
         EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.prob_superiority, ranks.prob_superiority_values),
+                   ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority),
         EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.cliff_delta, ranks.cliff_delta_values),
+                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta),
         EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.rank_biserial, ranks.rank_biserial_values),
+                   ranks.rank_biserial, ranks.rank_biserial_values, jk.rank_biserial),
         EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations; depends on N as well as on the effect",
-                   ranks.r_from_z, ranks.r_from_z_values),
+                   ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
                    ranks.hodges_lehmann, ranks.hodges_lehmann_values),
@@ -83,24 +87,26 @@ def _pair_estimate(fn, digits):
 def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
     """Effects for two conditions on the same participants; differences are rounded to `digits`
     decimal places before signs and ranks are taken (see `paired.differences`)."""
-    def spec(name, family, null, bounds, signed, assumes, est, values):
+    def spec(name, family, null, bounds, signed, assumes, est, values, fast=None):
         return EffectSpec(name, family, null, bounds, signed, assumes,
-                          _pair_estimate(est, digits), partial(values, digits=digits))
+                          _pair_estimate(est, digits), partial(values, digits=digits),
+                          None if fast is None else partial(fast, digits=digits))
     normal_d = "normally distributed differences"
     return (
         spec("mean_difference", "mean", 0.0, None, True,
              "interval: near-normal differences (or large n)",
-             paired.mean_difference, paired.mean_difference_values),
+             paired.mean_difference, paired.mean_difference_values, jk.paired_mean_difference),
         spec("d_z", "standardized_mean", 0.0, None, True, normal_d + "; scaled by SD of differences",
-             paired.d_z, paired.d_z_values),
+             paired.d_z, paired.d_z_values, jk.paired_d_z),
         spec("d_av", "standardized_mean", 0.0, None, True,
              "near-normal conditions; scaled by the average of the two SDs",
-             paired.d_av, paired.d_av_values),
+             paired.d_av, paired.d_av_values, jk.paired_d_av),
         spec("d_rm", "standardized_mean", 0.0, None, True,
              "near-normal conditions; d_z rescaled by the A-B correlation",
-             paired.d_rm, paired.d_rm_values),
+             paired.d_rm, paired.d_rm_values, jk.paired_d_rm),
         spec("ps_dep", "dominance", 0.5, (0.0, 1.0), False,
-             "pairs independent of each other; signs only", paired.ps_dep, paired.ps_dep_values),
+             "pairs independent of each other; signs only", paired.ps_dep, paired.ps_dep_values,
+             jk.paired_ps_dep),
         spec("matched_rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
              "pairs independent; differences comparable in size (signed ranks)",
              paired.matched_rank_biserial, paired.matched_rank_biserial_values),

@@ -51,8 +51,10 @@ def _undefined(reason: str) -> Estimate:
 
 
 def mean_difference_values(a, b):
-    """mean(A) - mean(B) along the last axis."""
-    return np.mean(a, axis=-1) - np.mean(b, axis=-1)
+    """mean(A) - mean(B) along the last axis, both taken about a common data value so that the
+    difference of two large, close means keeps its precision."""
+    origin = a[..., :1]
+    return np.mean(a - origin, axis=-1) - np.mean(b - origin, axis=-1)
 
 
 def pooled_sd_values(a, b):
@@ -129,8 +131,10 @@ def robust_d_values(a, b):
     na, nb = a.shape[-1], b.shape[-1]
     sw2 = ((na - 1) * winsorized_variance_values(a) + (nb - 1) * winsorized_variance_values(b)) / (
         na + nb - 2)
+    origin = a[..., :1]
     with np.errstate(divide="ignore", invalid="ignore"):
-        return ROBUST_SCALE * (trimmed_mean_values(a) - trimmed_mean_values(b)) / np.sqrt(sw2)
+        return ROBUST_SCALE * (trimmed_mean_values(a - origin) - trimmed_mean_values(b - origin)
+                               ) / np.sqrt(sw2)
 
 
 # ------------------------------------------------------------------ estimates with intervals

@@ -272,7 +272,7 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             effects.append(Effect(spec.name, spec.family, None, None, None, "none", (),
                                   spec.null_value, spec.assumes, est.reason, est.notes))
             continue
-        loo = leave_one_out_units(spec.values, samples)
+        loo = leave_one_out_values(spec, samples)
         boot = bca_interval(est.value, replicates[spec.name], loo, level, spec.bounds)
         intervals = tuple(iv for iv in (est.interval, boot.interval) if iv is not None)
         primary = est.interval if est.interval is not None else boot.interval
@@ -284,6 +284,15 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             spec.assumes, None, est.notes + extra, dict(est.details),
         ))
     return tuple(effects), notes
+
+
+def leave_one_out_values(spec: EffectSpec, samples) -> tuple[np.ndarray, ...]:
+    """Leave-one-out values of an effect: its exact fast path when it has one, else the refit
+    loop of `resampling.leave_one_out_units`."""
+    if spec.leave_one_out is not None:
+        with np.errstate(all="ignore"):
+            return tuple(np.asarray(v, dtype=float) for v in spec.leave_one_out(*samples))
+    return leave_one_out_units(spec.values, samples)
 
 
 def _diagnose_two(design: Groups, effects: tuple[Effect, ...]) -> Diagnostics:

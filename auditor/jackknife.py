@@ -1,0 +1,190 @@
+"""Exact leave-one-out values without refitting: O(n) for the mean family from running moments,
+O(n log n) for the dominance family from tie-aware counts found by binary search.
+
+Each function returns one array per stratum, like `resampling.leave_one_out_units`: element i of
+array j is the estimate with unit i of stratum j removed. Tests check every path against the plain
+refit loop to 1e-12.
+
+Removal of one value x from a sample of size n with mean m and M2 = sum (x_k - m)^2 uses the
+reverse of Welford's update (Welford 1962): m' = (n m - x) / (n - 1), M2' = M2 - (x - m)(x - m'),
+which stays accurate for data far from zero. Removal from a co-moment C = sum (a - m_a)(b - m_b)
+is C' = C - (a - m_a')(b - m_b).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from auditor import parametric as par
+from auditor import paired
+from auditor.moments import mean_var
+
+
+def _drop_moments(x: np.ndarray):
+    """For each i: (mean, M2) of x without x_i, and the new size."""
+    n = x.size
+    m, v, _ = mean_var(x)
+    m2 = v * (n - 1)
+    m_new = (n * m - x) / (n - 1) if n > 1 else np.full(n, np.nan)
+    m2_new = np.maximum(m2 - (x - m) * (x - m_new), 0.0)
+    return m_new, m2_new, n - 1
+
+
+def _var(m2, n):
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return m2 / (n - 1) if n > 1 else np.full(np.shape(m2), np.nan)
+
+
+def _centre(*samples):
+    """The samples shifted by their pooled median, so running sums lose no precision on data
+    such as 1e6 +- 1e-3 (every index here is unchanged by a common shift)."""
+    pivot = float(np.median(np.concatenate([np.ravel(s) for s in samples])))
+    return tuple(s - pivot for s in samples)
+
+
+def _two_group_moments(a, b):
+    """Per stratum: arrays of (mean_A, var_A, n_A, mean_B, var_B, n_B) after each removal."""
+    a, b = _centre(a, b)
+    ma, va, na = mean_var(a)
+    mb, vb, nb = mean_var(b)
+    ma_i, m2a_i, na_i = _drop_moments(a)
+    mb_j, m2b_j, nb_j = _drop_moments(b)
+    drop_a = (ma_i, _var(m2a_i, na_i), na_i, np.full(a.size, mb), np.full(a.size, vb), nb)
+    drop_b = (np.full(b.size, ma), np.full(b.size, va), na, mb_j, _var(m2b_j, nb_j), nb_j)
+    return drop_a, drop_b
+
+
+def _map_two(fn, a, b):
+    return tuple(fn(*parts) for parts in _two_group_moments(a, b))
+
+
+def mean_difference(a, b):
+    return _map_two(lambda ma, va, na, mb, vb, nb: ma - mb, a, b)
+
+
+def cohen_d(a, b):
+    def d(ma, va, na, mb, vb, nb):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (ma - mb) / np.sqrt(((na - 1) * va + (nb - 1) * vb) / (na + nb - 2))
+    return _map_two(d, a, b)
+
+
+def hedges_g(a, b):
+    da, db = cohen_d(a, b)
+    j = par.hedges_correction(a.size + b.size - 3)  # one value fewer in either case
+    return da * j, db * j
+
+
+def glass_delta(a, b, reference: int = 1):
+    def g(ma, va, na, mb, vb, nb):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (ma - mb) / np.sqrt(vb if reference == 1 else va)
+    return _map_two(g, a, b)
+
+
+def d_unpooled(a, b):
+    def d(ma, va, na, mb, vb, nb):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (ma - mb) / np.sqrt((va + vb) / 2)
+    return _map_two(d, a, b)
+
+
+# ------------------------------------------------------------------ dominance family
+
+
+def _placements(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray:
+    """#(other < x) + #(other == x) / 2 for each x, by binary search on the sorted other group."""
+    lo = np.searchsorted(other_sorted, x, side="left")
+    hi = np.searchsorted(other_sorted, x, side="right")
+    return lo + 0.5 * (hi - lo)
+
+
+def superiority_counts(a, b):
+    """U_A after removing each a_i, then each b_j: U - (a_i's placement among B), and
+    U - (n_A - b_j's placement among A)."""
+    sa, sb = np.sort(a), np.sort(b)
+    pa = _placements(a, sb)
+    pb = _placements(b, sa)
+    u = float(pa.sum())
+    return u - pa, u - (a.size - pb)
+
+
+def prob_superiority(a, b):
+    ua, ub = superiority_counts(a, b)
+    return ua / ((a.size - 1) * b.size), ub / (a.size * (b.size - 1))
+
+
+def cliff_delta(a, b):
+    pa, pb = prob_superiority(a, b)
+    return 2 * pa - 1, 2 * pb - 1
+
+
+rank_biserial = cliff_delta
+
+
+def r_from_z(a, b):
+    """z / sqrt(N) after each removal; the tie term loses (t^3 - t) - ((t - 1)^3 - (t - 1)) =
+    3t(t - 1) when the removed value sat in a tie block of size t."""
+    ua, ub = superiority_counts(a, b)
+    pooled = np.sort(np.concatenate([a, b]))
+    _, counts = np.unique(pooled, return_counts=True)
+    tie_total = float(np.sum(counts.astype(float) ** 3 - counts))
+
+    def r(x, u, na, nb):
+        t = (np.searchsorted(pooled, x, "right") - np.searchsorted(pooled, x, "left")).astype(float)
+        ties = tie_total - 3.0 * t * (t - 1.0)
+        m = na + nb
+        var = na * nb / 12.0 * ((m + 1) - ties / (m * (m - 1)))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return (u - na * nb / 2.0) / np.sqrt(var) / math.sqrt(m)
+
+    return r(a, ua, a.size - 1, b.size), r(b, ub, a.size, b.size - 1)
+
+
+# ------------------------------------------------------------------ paired designs
+
+
+def _paired_parts(x, digits):
+    d = paired.differences(x, digits)
+    x = _centre(x)[0]
+    md, m2d, n1 = _drop_moments(d)
+    ma, m2a, _ = _drop_moments(x[:, 0])
+    mb, m2b, _ = _drop_moments(x[:, 1])
+    return d, md, _var(m2d, n1), _var(m2a, n1), _var(m2b, n1), ma, mb, n1
+
+
+def paired_mean_difference(x, digits=12):
+    return (_paired_parts(x, digits)[1],)
+
+
+def paired_d_z(x, digits=12):
+    _, md, vd, *_ = _paired_parts(x, digits)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (md / np.sqrt(vd),)
+
+
+def paired_d_av(x, digits=12):
+    _, md, _, va, vb, *_ = _paired_parts(x, digits)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return (md / np.sqrt((va + vb) / 2),)
+
+
+def paired_d_rm(x, digits=12):
+    _, md, vd, va, vb, ma_new, _, n1 = _paired_parts(x, digits)
+    centred = _centre(x)[0]
+    a, b = centred[:, 0], centred[:, 1]
+    m_a, _, _ = mean_var(a)
+    m_b, _, _ = mean_var(b)
+    co = float(np.sum((a - m_a) * (b - m_b)))
+    co_new = co - (a - ma_new) * (b - m_b)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = co_new / (n1 - 1) / np.sqrt(va * vb)
+        return (md / np.sqrt(vd) * np.sqrt(2.0 * (1.0 - r)),)
+
+
+def paired_ps_dep(x, digits=12):
+    d = paired.differences(x, digits)
+    pos, zero, n = float(np.sum(d > 0)), float(np.sum(d == 0)), d.size
+    return ((pos - (d > 0) + 0.5 * (zero - (d == 0))) / (n - 1),)
