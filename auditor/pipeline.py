@@ -17,6 +17,7 @@ from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
                              paired_effects, two_group_effects)
 from auditor.errors import DesignError, UndefinedEffectWarning
+from auditor.influence import Units, influence_table
 from auditor.load import Table, column_position, read_table
 from auditor.parametric import Estimate
 from auditor.rationale import CAUTION
@@ -123,14 +124,26 @@ def _summaries(labels, values, missing=None):
     return tuple(diagnostics.describe(lab, x, m) for lab, x, m in zip(labels, values, missing))
 
 
+def _group_units(design: Groups) -> Units:
+    return Units(rows=design.rows,
+                 groups=tuple((lab,) * len(v) for lab, v in zip(design.labels, design.values)),
+                 values=design.values, minimum=(2,) * len(design.labels), kind="case")
+
+
+def _participant_units(design: Repeated, differences) -> Units:
+    return Units(rows=(design.rows,), groups=(design.subjects,), values=(differences,),
+                 minimum=(3,), kind="participant")
+
+
 def _result(design, outcome, group_column, summaries, account, diag, effects, notes, settings,
-            reference=None, subject=None, tests=None, pairwise=()):
+            reference=None, subject=None, tests=None, pairwise=(), influence=None):
     return AuditResult(
         design=design, outcome=outcome, group_column=group_column, groups=summaries,
         data=account, diagnostics=diag, effects=effects,
         settings=Settings(settings["level"], settings["resamples"], settings["seed"], reference),
         caution=CAUTION, tool_version=__version__, warnings=tuple(notes),
         subject_column=subject, tests=tests or {}, pairwise=tuple(pairwise),
+        influence=influence,
     )
 
 
@@ -140,24 +153,27 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
 def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress):
     ref_index = _reference_index(design.labels, reference)
     a, b = design.a, design.b
-    effects, notes = estimate_all(two_group_effects(ref_index), (a, b), level, resamples,
-                                  np.random.default_rng(seed), progress)
+    specs = two_group_effects(ref_index)
+    effects, notes, loo = estimate_all(specs, (a, b), level, resamples,
+                                       np.random.default_rng(seed), progress)
+    units = _group_units(design)
     return _result("two_independent", design.outcome, design.group_column,
                    _summaries(design.labels, design.values, design.missing), design.account,
                    _diagnose_two(design, effects), effects, notes,
-                   dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index])
+                   dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index],
+                   influence=influence_table(specs, effects, (a, b), loo, units, level))
 
 
 def _audit_k_groups(design: Groups, *, level, resamples, seed, progress):
     groups = design.values
     pairs = list(itertools.combinations(range(len(groups)), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
-    effects, notes = estimate_all(k_independent_effects(), groups, level, resamples, rngs[0],
-                                  progress)
+    specs = k_independent_effects()
+    effects, notes, loo = estimate_all(specs, groups, level, resamples, rngs[0], progress)
     comparisons, dunn_p = [], []
     for (i, j), rng in zip(pairs, rngs[1:]):
-        pair_effects, pair_notes = estimate_all(two_group_effects(1), (groups[i], groups[j]),
-                                                level, resamples, rng, None)
+        pair_effects, pair_notes, _ = estimate_all(two_group_effects(1), (groups[i], groups[j]),
+                                                   level, resamples, rng, None)
         z, p = kgroups.dunn_z(groups, i, j)
         dunn_p.append(None if not np.isfinite(p) else p)
         comparisons.append((i, j, pair_effects, None if not np.isfinite(z) else z))
@@ -169,7 +185,9 @@ def _audit_k_groups(design: Groups, *, level, resamples, seed, progress):
     return _result("k_independent", design.outcome, design.group_column,
                    _summaries(design.labels, groups, design.missing), design.account, diag,
                    effects, notes, dict(level=level, resamples=resamples, seed=seed),
-                   tests=kgroups.independent_tests(groups), pairwise=pairwise)
+                   tests=kgroups.independent_tests(groups), pairwise=pairwise,
+                   influence=influence_table(specs, effects, groups, loo, _group_units(design),
+                                             level))
 
 
 def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress):
@@ -179,8 +197,9 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
     columns = tuple(x[:, k] for k in range(x.shape[1]))
     settings = dict(level=level, resamples=resamples, seed=seed)
     if x.shape[1] == 2:
-        effects, notes = estimate_all(paired_effects(digits), (x,), level, resamples,
-                                      np.random.default_rng(seed), progress)
+        specs = paired_effects(digits)
+        effects, notes, loo = estimate_all(specs, (x,), level, resamples,
+                                           np.random.default_rng(seed), progress)
         d = paired.differences(x, digits)
         diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
                                          design.rows, digits, paired.sign_test(d))
@@ -189,15 +208,18 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
         return _result("paired", outcome, design.group_column,
                        _summaries(labels, columns, design.missing),
                        design.account, diag, effects, notes, settings,
-                       subject=design.subject_column, tests=tests)
+                       subject=design.subject_column, tests=tests,
+                       influence=influence_table(specs, effects, (x,), loo,
+                                                 _participant_units(design, d), level))
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
-    effects, notes = estimate_all(k_repeated_effects(), (x,), level, resamples, rngs[0], progress)
+    specs = k_repeated_effects()
+    effects, notes, loo = estimate_all(specs, (x,), level, resamples, rngs[0], progress)
     comparisons, wil_p = [], []
     for (i, j), rng in zip(pairs, rngs[1:]):
         sub = x[:, [i, j]]
-        pair_effects, pair_notes = estimate_all(paired_effects(digits), (sub,), level, resamples,
-                                                rng, None)
+        pair_effects, pair_notes, _ = estimate_all(paired_effects(digits), (sub,), level,
+                                                   resamples, rng, None)
         w = _wilcoxon(paired.differences(sub, digits))
         wil_p.append(w["p"])
         comparisons.append((i, j, pair_effects, w["statistic"]))
@@ -212,7 +234,9 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                    _summaries(labels, columns, design.missing),
                    design.account, diag, effects, notes, settings,
                    subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
-                   pairwise=pairwise)
+                   pairwise=pairwise,
+                   influence=influence_table(specs, effects, (x,), loo,
+                                             _participant_units(design, None), level))
 
 
 def _wilcoxon(d: np.ndarray) -> dict:
@@ -258,11 +282,12 @@ def _guarded(spec: EffectSpec, samples, level) -> Estimate:
 def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...], level: float,
                  resamples: int, rng: np.random.Generator, progress: Progress = None):
     """Every effect in `specs` with its analytic interval and a BCa interval over shared
-    stratified resamples of `samples`. Returns (effects, notes about undefined effects)."""
+    stratified resamples of `samples`. Returns (effects, notes about undefined effects,
+    leave-one-out values by effect name)."""
     estimates = {s.name: _guarded(s, samples, level) for s in specs}
     defined = {s.name: s.values for s in specs if estimates[s.name].value is not None}
     replicates = resample_units(defined, samples, resamples, rng, progress)
-    effects, notes = [], []
+    effects, notes, loo_by_name = [], [], {}
     for spec in specs:
         est = estimates[spec.name]
         if est.value is None:
@@ -273,6 +298,7 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
                                   spec.null_value, spec.assumes, est.reason, est.notes))
             continue
         loo = leave_one_out_values(spec, samples)
+        loo_by_name[spec.name] = loo
         boot = bca_interval(est.value, replicates[spec.name], loo, level, spec.bounds)
         intervals = tuple(iv for iv in (est.interval, boot.interval) if iv is not None)
         primary = est.interval if est.interval is not None else boot.interval
@@ -283,7 +309,7 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             "none" if primary is None else primary.method, intervals, spec.null_value,
             spec.assumes, None, est.notes + extra, dict(est.details),
         ))
-    return tuple(effects), notes
+    return tuple(effects), notes, loo_by_name
 
 
 def leave_one_out_values(spec: EffectSpec, samples) -> tuple[np.ndarray, ...]:

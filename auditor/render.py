@@ -103,6 +103,8 @@ def terminal_summary(result: AuditResult) -> str:
             out.append(f"  {pc.first + ' vs ' + pc.second:<30} {cells[0][0]:>22} {cells[0][1]:<18}"
                        f" {cells[1][0]:>10} {cells[1][1]:<18} {pval(pc.p_holm):>9}")
         out.append("")
+    if result.influence is not None:
+        _influence(result.influence, out)
     st = result.settings
     unit = "participants" if result.design in ("paired", "k_repeated") else "values within each group"
     out.append(f"Bootstrap: {st.bootstrap_resamples} resamples of {unit}, seed {st.seed}."
@@ -112,6 +114,35 @@ def terminal_summary(result: AuditResult) -> str:
     out.append("")
     out.append(result.caution)
     return "\n".join(out) + "\n"
+
+
+def _count(f) -> str:
+    return str(f.count) if f.reached else "not reached"
+
+
+def _influence(influence, out: list[str], top: int = 3) -> None:
+    unit = influence.unit
+    out.append(f"Single {unit}s (leave-one-out; fragility = {unit}s removed, greedily, until the"
+               " sign flips / the interval holds the no-effect value)")
+    width = max([17] + [len(e.effect) for e in influence.effects])
+    out.append(f"  {'index':<{width}} {'jackknife SE':>12} {'most influential':>17}"
+               f" {'fragility sign':>15} {'fragility interval':>19}")
+    for e in influence.effects:
+        out.append(f"  {e.effect:<{width}} {num(e.jackknife_se):>12}"
+                   f" {('line ' + str(e.most_influential_row)) if e.most_influential_row else 'n/a':>17}"
+                   f" {_count(e.fragility_sign):>15} {_count(e.fragility_null):>19}")
+    ranked = []
+    for case in influence.cases:
+        scores = {k: abs(v) for k, v in case["standardized_change"].items() if v is not None}
+        if scores:
+            name = max(scores, key=scores.get)
+            ranked.append((scores[name], name, case))
+    ranked.sort(key=lambda t: -t[0])
+    for score, name, case in ranked[:top]:
+        value = "" if case["value"] is None else f", value {num(case['value'])}"
+        out.append(f"  line {case['row']} ({case['group']}{value}): removing it moves {name} by"
+                   f" {num(case['change'][name])} ({num(score, 1)} jackknife SE)")
+    out.append("")
 
 
 def _accounting(result: AuditResult, out: list[str]) -> None:

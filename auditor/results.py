@@ -304,6 +304,7 @@ class AuditResult(_Plain):
     subject_column: str | None = None
     tests: dict = field(default_factory=dict)
     pairwise: tuple[PairComparison, ...] = ()
+    influence: Any = None  # influence.Influence
 
     @property
     def direction(self) -> str:
@@ -334,6 +335,7 @@ class AuditResult(_Plain):
             "effects": {e.name: plain(e) for e in self.effects},
             "tests": plain(self.tests),
             "pairwise": [p.to_dict() for p in self.pairwise],
+            "influence": None if self.influence is None else self.influence.to_dict(),
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

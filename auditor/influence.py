@@ -1,0 +1,278 @@
+"""How much single cases move each effect: exact leave-one-out changes, flags, and fragility.
+
+A unit is one case (independent groups) or one participant (paired and repeated designs).
+For every effect: the estimate without each unit, its change, the change over the jackknife SE;
+flags for units whose removal flips the sign, moves the interval across the no-effect value, or
+changes the conventional magnitude label; and two fragility counts found greedily (below).
+
+Jackknife SE and bias are stratified (Efron & Tibshirani 1993, sec. 11.2 and 10.5, summed over
+the strata, as the BCa acceleration is): SE^2 = sum_j (n_j - 1)/n_j sum_i (theta_(ji) - mean_j)^2,
+bias = sum_j (n_j - 1)(mean_j - theta-hat).
+
+Intervals after removal: for an effect whose interval is analytic, the interval is recomputed
+exactly on the reduced data. For an effect whose interval is the bootstrap's, the bootstrap is not
+rerun per case; its interval is shifted by the change in the estimate, and the output says so.
+Per case, exact recomputation is done for every unit when there are at most EXACT_ALL_UNITS, and
+otherwise for the units whose shifted interval ends within a quarter of the interval's width of
+the no-effect value (the only ones whose status can plausibly change).
+
+Fragility: units are removed one at a time, each time the one whose removal moves the estimate
+furthest toward the no-effect value, with the leave-one-out values recomputed exactly on the
+reduced data at every step (the exact fast path when the effect has one; for effects without one
+and more than ADAPTIVE_MAX_UNITS units, the order of the first leave-one-out pass is kept and only
+the estimate is recomputed at each step). `fragility_sign` counts the removals until the estimate
+reaches or crosses the no-effect value; `fragility_null` those until the interval contains it
+(0 when it already does). Greedy counts are upper bounds on the true minimum. A search stops when a
+group would fall below its minimum size or after MAX_STEPS removals; the count is then null with
+`reached: false`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from auditor.effects import EffectSpec
+from auditor.magnitude import magnitude_label
+from auditor.resampling import leave_one_out_units
+from auditor.results import Effect, _Plain, plain
+
+EXACT_ALL_UNITS = 300
+ADAPTIVE_MAX_UNITS = 400
+MAX_STEPS = 200
+
+
+@dataclass(frozen=True)
+class Units:
+    """Who each unit is: per stratum, the file line, the group label and a value to show."""
+
+    rows: tuple[np.ndarray, ...]
+    groups: tuple[tuple[str, ...], ...]
+    values: tuple[np.ndarray | None, ...]
+    minimum: tuple[int, ...]  # smallest size each stratum may shrink to
+    kind: str  # "case" or "participant"
+
+
+@dataclass(frozen=True)
+class Fragility(_Plain):
+    count: int | None
+    rows: tuple[int, ...]
+    reached: bool
+    interval_rule: str | None = None
+
+
+@dataclass(frozen=True)
+class EffectInfluence(_Plain):
+    effect: str
+    jackknife_se: float | None
+    bias: float | None
+    max_abs_change: float | None
+    most_influential_row: int | None
+    sign_flips: tuple[int, ...]
+    interval_flips: tuple[int, ...]
+    label_changes: tuple[int, ...]
+    fragility_sign: Fragility
+    fragility_null: Fragility
+    interval_rule: str
+
+
+@dataclass(frozen=True)
+class Influence(_Plain):
+    unit: str
+    effects: tuple[EffectInfluence, ...]
+    cases: tuple[dict, ...]
+
+    def to_dict(self):
+        return {"unit": self.unit, "effects": {e.effect: plain(e) for e in self.effects},
+                "cases": [plain(c) for c in self.cases]}
+
+
+def _side(value: float, null: float) -> int:
+    return 0 if value == null else (1 if value > null else -1)
+
+
+def _delete(samples, stratum: int, index: int):
+    return tuple(np.delete(s, index, axis=0) if k == stratum else s for k, s in enumerate(samples))
+
+
+def _loo(spec: EffectSpec, samples) -> tuple[np.ndarray, ...]:
+    if spec.leave_one_out is not None:
+        with np.errstate(all="ignore"):
+            return tuple(np.asarray(v, dtype=float) for v in spec.leave_one_out(*samples))
+    return leave_one_out_units(spec.values, samples)
+
+
+def _interval_contains(spec: EffectSpec, effect: Effect, reduced, level: float,
+                       new_value: float) -> bool | None:
+    """Does the interval on the reduced data contain the no-effect value? Exact recomputation for
+    analytic intervals, shifted bootstrap interval otherwise; None if no interval exists."""
+    if effect.ci_low is None:
+        return None
+    if effect.ci_method != "bca_bootstrap":
+        with np.errstate(all="ignore"):
+            est = spec.estimate(*reduced, level)
+        iv = est.interval
+        if iv is not None and math.isfinite(iv.low) and math.isfinite(iv.high):
+            return iv.low <= spec.null_value <= iv.high
+    shift = new_value - effect.estimate
+    return effect.ci_low + shift <= spec.null_value <= effect.ci_high + shift
+
+
+def _rule(effect: Effect) -> str:
+    if effect.ci_method == "bca_bootstrap":
+        return "bootstrap interval shifted by the change in the estimate (not rerun per case)"
+    return f"{effect.ci_method} interval recomputed exactly on the reduced data"
+
+
+def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.ndarray, ...],
+                     units: Units, level: float) -> EffectInfluence:
+    """Leave-one-out summary, flags and fragility of one effect (see the module docstring)."""
+    rule = _rule(effect)
+    if effect.estimate is None:
+        empty = Fragility(None, (), False)
+        return EffectInfluence(effect.name, None, None, None, None, (), (), (), empty, empty, rule)
+    theta, null = effect.estimate, spec.null_value
+    se2 = bias = 0.0
+    for values in loo:
+        ok = values[np.isfinite(values)]
+        n = ok.size
+        if n > 1:
+            se2 += (n - 1) / n * float(np.sum((ok - ok.mean()) ** 2))
+            bias += (n - 1) * (float(ok.mean()) - theta)
+    all_changes = np.concatenate([v - theta for v in loo])
+    all_rows = np.concatenate(units.rows)
+    finite = np.isfinite(all_changes)
+    max_change = float(np.max(np.abs(all_changes[finite]))) if finite.any() else None
+    top_row = int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))]) if finite.any() else None
+
+    side = _side(theta, null)
+    label = magnitude_label(spec.name, theta)
+    base_contains = (None if effect.ci_low is None
+                     else effect.ci_low <= null <= effect.ci_high)
+    total = int(sum(v.size for v in loo))
+    sign_flips, interval_flips, label_changes = [], [], []
+    width = (effect.ci_high - effect.ci_low) if effect.ci_low is not None else 0.0
+    for j, values in enumerate(loo):
+        for i, value in enumerate(values):
+            if not math.isfinite(value):
+                continue
+            row = int(units.rows[j][i])
+            if _side(value, null) != side:
+                sign_flips.append(row)
+            if magnitude_label(spec.name, float(value)) != label:
+                label_changes.append(row)
+            if base_contains is None:
+                continue
+            shift = value - theta
+            lo, hi = effect.ci_low + shift, effect.ci_high + shift
+            near = min(abs(lo - null), abs(hi - null)) <= 0.25 * width
+            if effect.ci_method != "bca_bootstrap" and (total <= EXACT_ALL_UNITS or near):
+                contains = _interval_contains(spec, effect, _delete(samples, j, i), level,
+                                              float(value))
+            else:
+                contains = lo <= null <= hi
+            if contains is not None and contains != base_contains:
+                interval_flips.append(row)
+    frag_sign, frag_null = fragility(spec, effect, samples, units, level)
+    return EffectInfluence(
+        effect=effect.name, jackknife_se=math.sqrt(se2), bias=bias, max_abs_change=max_change,
+        most_influential_row=top_row, sign_flips=tuple(sorted(sign_flips)),
+        interval_flips=tuple(sorted(interval_flips)), label_changes=tuple(sorted(label_changes)),
+        fragility_sign=frag_sign, fragility_null=frag_null, interval_rule=rule,
+    )
+
+
+def fragility(spec: EffectSpec, effect: Effect, samples, units: Units, level: float):
+    """Greedy counts of removals until the sign flips and until the interval holds the no-effect
+    value (module docstring). Returns (fragility_sign, fragility_null)."""
+    theta, null = effect.estimate, spec.null_value
+    side = _side(theta, null)
+    rule = _rule(effect)
+    already_null = effect.ci_low is not None and effect.ci_low <= null <= effect.ci_high
+    null_result = Fragility(0, (), True, rule) if already_null else None
+    if side == 0:
+        return Fragility(0, (), True), null_result or Fragility(0, (), True, rule)
+    if effect.ci_low is None:
+        null_result = Fragility(None, (), False, "no interval")
+    keep = [np.arange(s.shape[0]) for s in samples]
+    gone: set[tuple[int, int]] = set()
+    removed: list[int] = []
+    total = sum(s.shape[0] for s in samples)
+    adaptive = spec.leave_one_out is not None or total <= ADAPTIVE_MAX_UNITS
+    static_order = None
+    sign_result = None
+    for _ in range(MAX_STEPS):
+        current = tuple(s[k] for s, k in zip(samples, keep))
+        if static_order is None or adaptive:
+            loo = _loo(spec, current)
+            candidates = []
+            for j, values in enumerate(loo):
+                if keep[j].size - 1 < units.minimum[j]:
+                    continue
+                for i, value in enumerate(values):
+                    if math.isfinite(value):
+                        candidates.append((side * (value - null), j, int(keep[j][i])))
+            candidates.sort()
+            if not adaptive:
+                static_order = candidates
+        else:
+            candidates = [c for c in static_order if (c[1], c[2]) not in gone
+                          and keep[c[1]].size - 1 >= units.minimum[c[1]]]
+        if not candidates:
+            break
+        _, j, original = candidates[0]
+        keep[j] = keep[j][keep[j] != original]
+        gone.add((j, original))
+        removed.append(int(units.rows[j][original]))
+        reduced = tuple(s[k] for s, k in zip(samples, keep))
+        with np.errstate(all="ignore"):
+            value = float(spec.values(*[r[None, ...] for r in reduced])[0])
+        if not math.isfinite(value):
+            break
+        if sign_result is None and _side(value, null) != side:
+            sign_result = Fragility(len(removed), tuple(removed), True)
+        if null_result is None:
+            contains = _interval_contains(spec, effect, reduced, level, value)
+            if contains:
+                null_result = Fragility(len(removed), tuple(removed), True, rule)
+        if sign_result is not None and null_result is not None:
+            break
+    if sign_result is None:
+        sign_result = Fragility(None, (), False)
+    if null_result is None:
+        null_result = Fragility(None, (), False, rule)
+    return sign_result, null_result
+
+
+def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samples,
+                    loo_by_name: dict[str, tuple[np.ndarray, ...]], units: Units,
+                    level: float) -> Influence:
+    """Influence of every effect and the per-case table (row, group, value, change per effect)."""
+    by_name = {e.name: e for e in effects}
+    summaries = tuple(effect_influence(spec, by_name[spec.name], samples,
+                                       loo_by_name.get(spec.name, ()), units, level)
+                      for spec in specs if spec.name in loo_by_name)
+    se = {s.effect: s.jackknife_se for s in summaries}
+    cases = []
+    for j, rows in enumerate(units.rows):
+        for i, row in enumerate(rows):
+            changes, standardized = {}, {}
+            for spec in specs:
+                loo = loo_by_name.get(spec.name)
+                theta = by_name[spec.name].estimate
+                if loo is None or theta is None:
+                    continue
+                v = float(loo[j][i])
+                change = v - theta if math.isfinite(v) else None
+                changes[spec.name] = change
+                scale = se.get(spec.name)
+                standardized[spec.name] = (change / scale if change is not None and scale
+                                           else None)
+            value = None if units.values[j] is None else float(units.values[j][i])
+            cases.append({"row": int(row), "group": units.groups[j][i], "value": value,
+                          "change": changes, "standardized_change": standardized})
+    cases.sort(key=lambda c: c["row"])
+    return Influence(units.kind, summaries, tuple(cases))
