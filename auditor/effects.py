@@ -34,6 +34,7 @@ class EffectSpec:
     estimate: Callable[..., Estimate]
     values: Callable[..., np.ndarray]
     leave_one_out: Callable[..., tuple[np.ndarray, ...]] | None = None  # exact fast path
+    by_counts: Callable[..., Callable[..., np.ndarray]] | None = None  # samples -> count statistic
 
 
 def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
@@ -62,16 +63,18 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    par.robust_d, par.robust_d_values),
         EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority),
+                   ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority,
+                   ranks.prob_superiority_counts),
         EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta),
+                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts),
         EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.rank_biserial, ranks.rank_biserial_values, jk.rank_biserial),
+                   ranks.rank_biserial, ranks.rank_biserial_values, jk.rank_biserial,
+                   ranks.cliff_delta_counts),
         EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations; depends on N as well as on the effect",
-                   ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z),
+                   ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
                    ranks.hodges_lehmann, ranks.hodges_lehmann_values),

@@ -285,8 +285,10 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
     stratified resamples of `samples`. Returns (effects, notes about undefined effects,
     leave-one-out values by effect name)."""
     estimates = {s.name: _guarded(s, samples, level) for s in specs}
-    defined = {s.name: s.values for s in specs if estimates[s.name].value is not None}
-    replicates = resample_units(defined, samples, resamples, rng, progress)
+    defined = [s for s in specs if estimates[s.name].value is not None]
+    by_values = {s.name: s.values for s in defined if s.by_counts is None}
+    by_counts = {s.name: s.by_counts(*samples) for s in defined if s.by_counts is not None}
+    replicates = resample_units(by_values, samples, resamples, rng, progress, by_counts)
     effects, notes, loo_by_name = [], [], {}
     for spec in specs:
         est = estimates[spec.name]

@@ -32,27 +32,45 @@ def _chunk(values_per_resample: int, resamples: int) -> int:
     return max(1, min(resamples, CHUNK_VALUES // max(1, values_per_resample)))
 
 
+def counts_from_indices(idx: np.ndarray) -> np.ndarray:
+    """How often each unit was drawn in each resample: (m, n) indices -> (m, n) counts."""
+    m, n = idx.shape
+    flat = (idx + (np.arange(m) * n)[:, None]).ravel()
+    return np.bincount(flat, minlength=m * n).reshape(m, n).astype(float)
+
+
 def resample_units(statistics: Mapping[str, Statistic], samples: Sequence[np.ndarray],
                    resamples: int, rng: np.random.Generator,
-                   progress: Callable[[int, int], None] | None = None) -> dict[str, np.ndarray]:
+                   progress: Callable[[int, int], None] | None = None,
+                   count_statistics: Mapping[str, Statistic] | None = None,
+                   ) -> dict[str, np.ndarray]:
     """Replicates of every statistic over the same stratified resamples.
 
     Each sample is one stratum whose first axis indexes its units: a group's values (shape (n,))
     for independent groups, or participants' rows (shape (n, k)) for paired and repeated designs,
     so a participant's conditions stay together. Every stratum is resampled with replacement on
     its own, keeping its size. A statistic takes the stacked resamples, one array per stratum of
-    shape (m, n_j, ...), and returns m values.
+    shape (m, n_j, ...), and returns m values. A count statistic takes instead, per stratum, the
+    (m, n_j) matrix of how often each unit was drawn (rank statistics use it to avoid sorting each
+    resample). Both kinds see the very same resamples.
     """
+    count_statistics = count_statistics or {}
     sizes = [s.shape[0] for s in samples]
     step = _chunk(sum(s.size for s in samples), resamples)
-    out = {name: np.empty(resamples) for name in statistics}
+    out = {name: np.empty(resamples) for name in (*statistics, *count_statistics)}
     done = 0
     while done < resamples:
         m = min(step, resamples - done)
-        stacked = [s[rng.integers(0, n, (m, n))] for s, n in zip(samples, sizes)]
+        indices = [rng.integers(0, n, (m, n)) for n in sizes]
         with np.errstate(all="ignore"):
-            for name, fn in statistics.items():
-                out[name][done:done + m] = fn(*stacked)
+            if statistics:
+                stacked = [s[i] for s, i in zip(samples, indices)]
+                for name, fn in statistics.items():
+                    out[name][done:done + m] = fn(*stacked)
+            if count_statistics:
+                counts = [counts_from_indices(i) for i in indices]
+                for name, fn in count_statistics.items():
+                    out[name][done:done + m] = fn(*counts)
         done += m
         if progress is not None:
             progress(done, resamples)
