@@ -20,7 +20,9 @@ Fragility: units are removed one at a time, each time the one whose removal move
 furthest toward the no-effect value, with the leave-one-out values recomputed exactly on the
 reduced data at every step (the exact fast path when the effect has one; for effects without one
 and more than ADAPTIVE_MAX_UNITS units, the order of the first leave-one-out pass is kept and only
-the estimate is recomputed at each step). `fragility_sign` counts the removals until the estimate
+the estimate is recomputed at each step); among equally good candidates the one on the earlier
+file line goes first, so the count does not depend on which group is named first.
+`fragility_sign` counts the removals until the estimate
 reaches or crosses the no-effect value; `fragility_null` those until the interval contains it
 (0 when it already does). Greedy counts are upper bounds on the true minimum. A search stops when a
 group would fall below its minimum size or after MAX_STEPS removals; the count is then null with
@@ -198,34 +200,41 @@ def fragility(spec: EffectSpec, effect: Effect, samples, units: Units, level: fl
     if effect.ci_low is None:
         null_result = Fragility(None, (), False, "no interval")
     keep = [np.arange(s.shape[0]) for s in samples]
-    gone: set[tuple[int, int]] = set()
     removed: list[int] = []
     total = sum(s.shape[0] for s in samples)
     adaptive = spec.leave_one_out is not None or total <= ADAPTIVE_MAX_UNITS
-    static_order = None
+    static_scores = None  # per stratum: first-pass scores, by original index
     sign_result = None
     for _ in range(MAX_STEPS):
         current = tuple(s[k] for s, k in zip(samples, keep))
-        if static_order is None or adaptive:
+        if adaptive or static_scores is None:
             loo = _loo(spec, current)
-            candidates = []
-            for j, values in enumerate(loo):
-                if keep[j].size - 1 < units.minimum[j]:
-                    continue
-                for i, value in enumerate(values):
-                    if math.isfinite(value):
-                        candidates.append((side * (value - null), j, int(keep[j][i])))
-            candidates.sort()
+            scores = [side * (v - null) for v in loo]  # lower = closer to (or past) the null
             if not adaptive:
-                static_order = candidates
-        else:
-            candidates = [c for c in static_order if (c[1], c[2]) not in gone
-                          and keep[c[1]].size - 1 >= units.minimum[c[1]]]
-        if not candidates:
+                static_scores = [np.full(s.shape[0], np.inf) for s in samples]
+                for j, k in enumerate(keep):
+                    static_scores[j][k] = scores[j]
+        if not adaptive:
+            scores = [static_scores[j][k] for j, k in enumerate(keep)]
+        best = None  # (score, file line, stratum, position); ties go to the earlier line
+        for j, sc in enumerate(scores):
+            if keep[j].size - 1 < units.minimum[j]:
+                continue
+            sc = np.where(np.isfinite(sc), sc, np.inf)
+            low = float(np.min(sc)) if sc.size else np.inf
+            if not np.isfinite(low):
+                continue
+            tied = np.flatnonzero(sc == low)
+            lines = units.rows[j][keep[j][tied]]
+            i = int(tied[np.argmin(lines)])
+            candidate = (low, int(units.rows[j][keep[j][i]]), j, i)
+            if best is None or candidate[:2] < best[:2]:
+                best = candidate
+        if best is None:
             break
-        _, j, original = candidates[0]
-        keep[j] = keep[j][keep[j] != original]
-        gone.add((j, original))
+        _, _, j, i = best
+        original = int(keep[j][i])
+        keep[j] = np.delete(keep[j], i)
         removed.append(int(units.rows[j][original]))
         reduced = tuple(s[k] for s, k in zip(samples, keep))
         with np.errstate(all="ignore"):
@@ -254,7 +263,7 @@ def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samp
     by_name = {e.name: e for e in effects}
     summaries = tuple(effect_influence(spec, by_name[spec.name], samples,
                                        loo_by_name.get(spec.name, ()), units, level)
-                      for spec in specs if spec.name in loo_by_name)
+                      for spec in specs)
     se = {s.effect: s.jackknife_se for s in summaries}
     cases = []
     for j, rows in enumerate(units.rows):

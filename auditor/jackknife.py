@@ -101,12 +101,20 @@ def _placements(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray:
     return lo + 0.5 * (hi - lo)
 
 
+def _placements_any_order(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray:
+    """_placements with the queries searched in sorted order (much faster on large arrays)."""
+    order = np.argsort(x, kind="stable")
+    out = np.empty(x.size)
+    out[order] = _placements(x[order], other_sorted)
+    return out
+
+
 def superiority_counts(a, b):
     """U_A after removing each a_i, then each b_j: U - (a_i's placement among B), and
     U - (n_A - b_j's placement among A)."""
     sa, sb = np.sort(a), np.sort(b)
-    pa = _placements(a, sb)
-    pb = _placements(b, sa)
+    pa = _placements_any_order(a, sb)
+    pb = _placements_any_order(b, sa)
     u = float(pa.sum())
     return u - pa, u - (a.size - pb)
 

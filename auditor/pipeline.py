@@ -3,6 +3,7 @@ resample). No printing, no files written."""
 
 from __future__ import annotations
 
+import dataclasses
 import itertools
 import os
 import warnings
@@ -150,8 +151,17 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
 # ------------------------------------------------------------------ designs
 
 
+def _sorted_groups(design: Groups) -> Groups:
+    """The same groups with each one's values (and their file lines) in increasing order: every
+    index is unchanged, and rank statistics then resample without permuting anything."""
+    orders = [np.argsort(v, kind="stable") for v in design.values]
+    return dataclasses.replace(design, values=tuple(v[o] for v, o in zip(design.values, orders)),
+                               rows=tuple(r[o] for r, o in zip(design.rows, orders)))
+
+
 def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress):
     ref_index = _reference_index(design.labels, reference)
+    design = _sorted_groups(design)
     a, b = design.a, design.b
     specs = two_group_effects(ref_index)
     effects, notes, loo = estimate_all(specs, (a, b), level, resamples,

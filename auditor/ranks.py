@@ -347,16 +347,20 @@ def superiority_by_counts(a: np.ndarray, b: np.ndarray):
     drawn), likewise w_B. The superiority count is
         U = sum_i w_A[i] (W_B(< a_i) + W_B(= a_i) / 2),
     where W_B(< x) sums w_B over B's values below x: a cumulative sum of w_B in sorted order read
-    at positions found once by binary search. Each resample costs O(n_A + n_B).
+    at positions found once by binary search. Each resample costs O(n_A + n_B); when the samples
+    are already sorted (as the pipeline passes them) no column is permuted at all.
 
-    Returns a function of the count matrices (m, n_A) and (m, n_B), in the samples' original
-    order, giving a dict with 'u' (m,) and 'tie_term' (m,) = sum over distinct pooled values of
+    Returns two functions of the count matrices (m, n_A) and (m, n_B), in the samples' original
+    order: `u` gives U per resample, `tie_term` gives sum over distinct pooled values of
     t^3 - t, t being the resampled multiplicity of that value.
     """
     order_a, order_b = np.argsort(a, kind="stable"), np.argsort(b, kind="stable")
+    sorted_a = bool(np.all(order_a == np.arange(a.size)))
+    sorted_b = bool(np.all(order_b == np.arange(b.size)))
     sa, sb = a[order_a], b[order_b]
     lo = np.searchsorted(sb, sa, side="left")
     hi = np.searchsorted(sb, sa, side="right")
+    half_tied = bool(np.any(hi > lo))
     pooled = np.concatenate([a, b])
     order_p = np.argsort(pooled, kind="stable")
     sp = pooled[order_p]
@@ -365,42 +369,43 @@ def superiority_by_counts(a: np.ndarray, b: np.ndarray):
     starts = np.flatnonzero(new_block)
     ends = np.append(starts[1:], sp.size)
 
-    def compute(ca: np.ndarray, cb: np.ndarray) -> dict[str, np.ndarray]:
-        wa, wb = ca[:, order_a], cb[:, order_b]
+    def u(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
+        wa = ca if sorted_a else ca[:, order_a]
+        wb = cb if sorted_b else cb[:, order_b]
         cum = np.zeros((wb.shape[0], wb.shape[1] + 1))
         np.cumsum(wb, axis=1, out=cum[:, 1:])
-        below, upto = cum[:, lo], cum[:, hi]
-        u = np.sum(wa * (below + 0.5 * (upto - below)), axis=1)
+        below = cum[:, lo]
+        if half_tied:
+            below += 0.5 * (cum[:, hi] - below)
+        return np.einsum("ij,ij->i", wa, below)
+
+    def tie_term(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
         wp = np.concatenate([ca, cb], axis=1)[:, order_p]
         cp = np.zeros((wp.shape[0], wp.shape[1] + 1))
         np.cumsum(wp, axis=1, out=cp[:, 1:])
         t = cp[:, ends] - cp[:, starts]
-        return {"u": u, "tie_term": np.sum(t**3 - t, axis=1)}
+        return np.sum(t**3 - t, axis=1)
 
-    return compute
-
-
-def _from_counts(a, b, finish):
-    compute = superiority_by_counts(a, b)
-    na, nb = a.size, b.size
-
-    def statistic(ca, cb):
-        return finish(compute(ca, cb), na, nb)
-    return statistic
+    return u, tie_term
 
 
 def prob_superiority_counts(a, b):
-    return _from_counts(a, b, lambda r, na, nb: r["u"] / (na * nb))
+    u, _ = superiority_by_counts(a, b)
+    return lambda ca, cb: u(ca, cb) / (a.size * b.size)
 
 
 def cliff_delta_counts(a, b):
-    return _from_counts(a, b, lambda r, na, nb: 2.0 * r["u"] / (na * nb) - 1.0)
+    u, _ = superiority_by_counts(a, b)
+    return lambda ca, cb: 2.0 * u(ca, cb) / (a.size * b.size) - 1.0
 
 
 def r_from_z_counts(a, b):
-    def finish(r, na, nb):
-        n = na + nb
-        var = na * nb / 12.0 * ((n + 1) - r["tie_term"] / (n * (n - 1)))
+    u, tie_term = superiority_by_counts(a, b)
+    na, nb = a.size, b.size
+    n = na + nb
+
+    def statistic(ca, cb):
+        var = na * nb / 12.0 * ((n + 1) - tie_term(ca, cb) / (n * (n - 1)))
         with np.errstate(divide="ignore", invalid="ignore"):
-            return (r["u"] - na * nb / 2.0) / np.sqrt(var) / math.sqrt(n)
-    return _from_counts(a, b, finish)
+            return (u(ca, cb) - na * nb / 2.0) / np.sqrt(var) / math.sqrt(n)
+    return statistic

@@ -3,7 +3,8 @@
 Resampling is stratified: each bootstrap sample draws n_A values from A and n_B from B with
 replacement, so the group sizes stay fixed. All indices share the same resamples. Resamples are
 processed in chunks so that the drawn values never take more than `CHUNK_VALUES` numbers
-(32 MiB of float64) at once, whatever the number of resamples. The random stream is drawn in the
+(8 MiB of float64; with indices, counts and temporaries about 80 MiB) at once, whatever the
+number of resamples. The random stream is drawn in the
 same order as `scipy.stats.bootstrap` with `batch` equal to the chunk size (per chunk: the indices
 of A, then those of B), so the two give the same replicates from the same generator.
 """
@@ -18,7 +19,7 @@ from scipy import special
 
 from auditor.results import Interval
 
-CHUNK_VALUES = 4_000_000
+CHUNK_VALUES = 1_000_000
 Statistic = Callable[..., np.ndarray]
 
 
