@@ -101,8 +101,14 @@ def _placements(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray:
     return lo + 0.5 * (hi - lo)
 
 
+def _is_sorted(x: np.ndarray) -> bool:
+    return bool(np.all(x[1:] >= x[:-1]))
+
+
 def _placements_any_order(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray:
     """_placements with the queries searched in sorted order (much faster on large arrays)."""
+    if _is_sorted(x):
+        return _placements(x, other_sorted)
     order = np.argsort(x, kind="stable")
     out = np.empty(x.size)
     out[order] = _placements(x[order], other_sorted)
@@ -112,7 +118,8 @@ def _placements_any_order(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray
 def superiority_counts(a, b):
     """U_A after removing each a_i, then each b_j: U - (a_i's placement among B), and
     U - (n_A - b_j's placement among A)."""
-    sa, sb = np.sort(a), np.sort(b)
+    sa = a if _is_sorted(a) else np.sort(a)
+    sb = b if _is_sorted(b) else np.sort(b)
     pa = _placements_any_order(a, sb)
     pb = _placements_any_order(b, sa)
     u = float(pa.sum())
