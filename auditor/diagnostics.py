@@ -128,6 +128,17 @@ def _ratio(x: float, y: float) -> float | None:
     return big / small
 
 
+def equal_spread_tests(*groups: np.ndarray):
+    """(statistic, p) of Levene's test centred on means, the Brown-Forsythe variant centred on
+    medians, and Fligner-Killeen, across all groups (scipy.stats.levene and scipy.stats.fligner)."""
+    out = []
+    for fn, kwargs in ((stats.levene, {"center": "mean"}), (stats.levene, {"center": "median"}),
+                       (stats.fligner, {})):
+        res = _quiet(fn, *groups, **kwargs)
+        out.append((_finite(res.statistic), _finite(res.pvalue)))
+    return tuple(out)
+
+
 def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
     """Compare the spread of two groups.
 
@@ -143,12 +154,7 @@ def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
         notes.append("a group has zero spread: tests of equal spread are undefined")
         lev = bf = fl = (None, None)
     else:
-        r1 = _quiet(stats.levene, a, b, center="mean")
-        r2 = _quiet(stats.levene, a, b, center="median")
-        r3 = _quiet(stats.fligner, a, b)
-        lev = (_finite(r1.statistic), _finite(r1.pvalue))
-        bf = (_finite(r2.statistic), _finite(r2.pvalue))
-        fl = (_finite(r3.statistic), _finite(r3.pvalue))
+        lev, bf, fl = equal_spread_tests(a, b)
     larger = 0 if sd[0] >= sd[1] else 1
     return Spread(
         sd_ratio=_ratio(*sd), larger_sd_group=labels[larger], iqr_ratio=_ratio(*iqr),
@@ -253,12 +259,7 @@ def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...]) -> KSpread
         notes.append("a group has zero spread: tests of equal spread are undefined")
         lev = bf = fl = (None, None)
     else:
-        r1 = _quiet(stats.levene, *groups, center="mean")
-        r2 = _quiet(stats.levene, *groups, center="median")
-        r3 = _quiet(stats.fligner, *groups)
-        lev = (_finite(r1.statistic), _finite(r1.pvalue))
-        bf = (_finite(r2.statistic), _finite(r2.pvalue))
-        fl = (_finite(r3.statistic), _finite(r3.pvalue))
+        lev, bf, fl = equal_spread_tests(*groups)
     sizes = [g.size for g in groups]
     return KSpread(
         sd_ratio=sds[hi] / sds[lo] if sds[lo] > 0 else None, largest_sd_group=labels[hi],

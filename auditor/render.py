@@ -174,6 +174,11 @@ def _shape(nm) -> str:
             f" excess kurtosis {num(nm.excess_kurtosis, 2)} (SE {num(nm.kurtosis_se, 2)})")
 
 
+def _ties_line(t) -> str:
+    return (f"  ties: {num(100 * t.tie_fraction, 1)}% of values tied, {t.distinct_values} distinct"
+            + ("; looks discrete" if t.looks_discrete else ""))
+
+
 def _screen_two(result: AuditResult, out: list[str]) -> None:
     diag = result.diagnostics
     for nm in diag.normality[:2]:
@@ -182,9 +187,7 @@ def _screen_two(result: AuditResult, out: list[str]) -> None:
     out.append(f"  spread: SD ratio {num(sp.sd_ratio, 2)} (larger in '{sp.larger_sd_group}'"
                + (", the smaller group" if sp.smaller_group_has_larger_sd else "") + "),"
                f" Levene p {pval(sp.levene_p)}, Brown-Forsythe p {pval(sp.brown_forsythe_p)}")
-    t = diag.ties
-    out.append(f"  ties: {num(100 * t.tie_fraction, 1)}% of values tied, {t.distinct_values}"
-               f" distinct" + ("; looks discrete" if t.looks_discrete else ""))
+    out.append(_ties_line(diag.ties))
     for o in diag.outliers:
         out.append(f"  extreme cases in '{o.label}' (lines): {lines_list(o.rows)}")
     nt = diag.normal_theory
@@ -210,9 +213,7 @@ def _screen_k(result: AuditResult, out: list[str]) -> None:
     out.append(f"  spread: largest/smallest SD {num(sp.sd_ratio, 2)} ('{sp.largest_sd_group}' /"
                f" '{sp.smallest_sd_group}'), Levene p {pval(sp.levene_p)},"
                f" Brown-Forsythe p {pval(sp.brown_forsythe_p)}")
-    t = diag.ties
-    out.append(f"  ties: {num(100 * t.tie_fraction, 1)}% of values tied, {t.distinct_values}"
-               f" distinct" + ("; looks discrete" if t.looks_discrete else ""))
+    out.append(_ties_line(diag.ties))
     if result.design == "k_independent":
         for o in diag.outliers:
             out.append(f"  extreme cases in '{o.label}' (lines): {lines_list(o.rows)}")
