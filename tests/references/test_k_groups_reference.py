@@ -27,7 +27,6 @@ from __future__ import annotations
 import functools
 import itertools
 import math
-import warnings
 
 import numpy as np
 import pandas as pd
@@ -41,15 +40,9 @@ from statsmodels.stats.oneway import anova_oneway
 
 from auditor import diagnostics, kgroups
 from auditor.pipeline import audit
+from tests.references.common import quiet_pingouin as _quiet_pingouin
 
 LEVEL = 0.95
-
-
-def _quiet_pingouin(fn, *args, **kwargs):
-    """Call pingouin with pandas' deprecation notices about pingouin's own code silenced."""
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", category=pd.errors.Pandas4Warning)
-        return fn(*args, **kwargs)
 
 
 # ================================================================ k independent groups: data

@@ -24,7 +24,6 @@ import functools
 import itertools
 import math
 import statistics
-import warnings
 from fractions import Fraction
 
 import numpy as np
@@ -37,17 +36,11 @@ from statsmodels.stats.proportion import proportion_confint
 
 from auditor import diagnostics, paired, resampling
 from auditor.pipeline import audit
+from tests.references.common import quiet_pingouin as _quiet_pingouin
 
 LEVEL = 0.95
 
 # ---------------------------------------------------------------------------------- datasets
-
-
-def _quiet_pingouin(fn, *args, **kwargs):
-    """Call pingouin with pandas' deprecation notices about pingouin's own code silenced."""
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", category=pd.errors.Pandas4Warning)
-        return fn(*args, **kwargs)
 
 
 def _wide_pair(frame, first, second):
