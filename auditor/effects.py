@@ -18,6 +18,7 @@ from functools import partial
 import numpy as np
 
 from auditor import jackknife as jk
+from auditor import jackknife_shift as js
 from auditor import kgroups, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
@@ -60,7 +61,7 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    jk.d_unpooled),
         EffectSpec("robust_d", "standardized_mean", 0.0, None, True,
                    "symmetric data with possible heavy tails or outliers (20% trimmed)",
-                   par.robust_d, par.robust_d_values),
+                   par.robust_d, par.robust_d_values, jk.robust_d),
         EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
                    "independent observations only (ordinal outcome is enough)",
                    ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority,
@@ -77,7 +78,7 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
-                   ranks.hodges_lehmann, ranks.hodges_lehmann_values),
+                   ranks.hodges_lehmann, ranks.hodges_lehmann_values, js.hodges_lehmann),
     )
 
 
@@ -118,7 +119,7 @@ def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
              paired.r_from_z, paired.r_from_z_values),
         spec("hodges_lehmann", "shift", 0.0, None, True,
              "interval: differences symmetric about their centre",
-             paired.hodges_lehmann, paired.hodges_lehmann_values),
+             paired.hodges_lehmann, paired.hodges_lehmann_values, js.paired_hodges_lehmann),
     )
 
 
