@@ -18,7 +18,7 @@ from functools import partial
 import numpy as np
 
 from auditor import jackknife as jk
-from auditor import jackknife_shift as js
+from auditor import shifts
 from auditor import kgroups, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
@@ -78,7 +78,8 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
-                   ranks.hodges_lehmann, ranks.hodges_lehmann_values, js.hodges_lehmann),
+                   ranks.hodges_lehmann, ranks.hodges_lehmann_values,
+                   shifts.hodges_lehmann_without_each, shifts.hodges_lehmann_by_counts),
     )
 
 
@@ -119,7 +120,8 @@ def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
              paired.r_from_z, paired.r_from_z_values),
         spec("hodges_lehmann", "shift", 0.0, None, True,
              "interval: differences symmetric about their centre",
-             paired.hodges_lehmann, paired.hodges_lehmann_values, js.paired_hodges_lehmann),
+             paired.hodges_lehmann, paired.hodges_lehmann_values,
+             shifts.paired_hodges_lehmann_without_each),
     )
 
 

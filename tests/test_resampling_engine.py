@@ -17,6 +17,9 @@ def _data():
     rng = np.random.default_rng(77)
     yield rng.normal(size=41), rng.normal(0.3, 2.0, size=36)
     yield rng.integers(1, 6, 52).astype(float), rng.integers(1, 8, 47).astype(float)
+    # one-decimal values: pair differences such as 0.3 - 0.1 round in floating point
+    yield np.round(rng.normal(0.2, 1, 90), 1), np.round(rng.normal(0, 1.5, 75), 1)
+    yield np.array([2.0, 5.0]), np.array([1.0, 4.0, 4.0])
 
 
 @pytest.mark.parametrize("presorted", [False, True])
@@ -25,7 +28,8 @@ def test_count_statistics_equal_sorting_each_resample(a, b, presorted):
     if presorted:  # the pipeline passes sorted groups; the no-permutation path must agree too
         a, b = np.sort(a), np.sort(b)
     specs = [s for s in two_group_effects() if s.by_counts is not None]
-    assert {s.name for s in specs} == {"prob_superiority", "cliff_delta", "rank_biserial", "r_from_z"}
+    assert {s.name for s in specs} == {"prob_superiority", "cliff_delta", "rank_biserial", "r_from_z",
+                                       "hodges_lehmann"}
     for spec in specs:
         by_values = resampling.resample_units({"x": spec.values}, (a, b), 700,
                                               np.random.default_rng(5))["x"]
@@ -56,3 +60,25 @@ def test_superiority_counts_match_mann_whitney_u():
     a, b = next(_data())
     u = ranks.superiority_by_counts(a, b)[0](np.ones((1, a.size)), np.ones((1, b.size)))[0]
     assert u == pytest.approx(stats.mannwhitneyu(a, b).statistic, abs=1e-9)
+
+
+def test_shift_by_counts_handles_resamples_far_outside_the_starting_bracket():
+    """Resamples made of one repeated value put the shift at the edge of all pair differences,
+    far outside the search's starting bracket (the estimate +- 3 interval half-widths)."""
+    from auditor.shifts import hodges_lehmann_by_counts
+
+    rng = np.random.default_rng(12)
+    a, b = rng.normal(0, 1, 30), rng.normal(0.5, 1, 25)
+    ca = np.zeros((4, a.size))
+    cb = np.zeros((4, b.size))
+    ca[0, np.argmin(a)], cb[0, np.argmax(b)] = a.size, b.size  # lowest shift possible
+    ca[1, np.argmax(a)], cb[1, np.argmin(b)] = a.size, b.size  # highest
+    ca[2] = 1.0
+    cb[2] = 1.0  # the sample itself
+    ca[3, :2], cb[3, -3:] = a.size / 2, [10.0, 10.0, 5.0]
+    got = hodges_lehmann_by_counts(a, b)(ca, cb)
+    want = [float(np.median(np.subtract.outer(np.repeat(a, ca[i].astype(int)),
+                                              np.repeat(b, cb[i].astype(int)))))
+            for i in range(4)]
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-12)
+    assert got[0] == a.min() - b.max() and got[1] == a.max() - b.min()
