@@ -18,6 +18,8 @@ from functools import partial
 import numpy as np
 
 from auditor import jackknife as jk
+from auditor import jackknife_omnibus as jo
+from auditor import jackknife_signed_ranks as jsr
 from auditor import shifts
 from auditor import kgroups, paired, ranks
 from auditor import parametric as par
@@ -114,10 +116,11 @@ def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
              jk.paired_ps_dep),
         spec("matched_rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
              "pairs independent; differences comparable in size (signed ranks)",
-             paired.matched_rank_biserial, paired.matched_rank_biserial_values),
+             paired.matched_rank_biserial, paired.matched_rank_biserial_values,
+             jsr.matched_rank_biserial),
         spec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
              "signed-rank z; depends on N as well as on the effect",
-             paired.r_from_z, paired.r_from_z_values),
+             paired.r_from_z, paired.r_from_z_values, jsr.r_from_z),
         spec("hodges_lehmann", "shift", 0.0, None, True,
              "interval: differences symmetric about their centre",
              paired.hodges_lehmann, paired.hodges_lehmann_values,
@@ -142,16 +145,20 @@ def k_independent_effects() -> tuple[EffectSpec, ...]:
     return (
         EffectSpec("epsilon_squared_h", "variance_explained", 0.0, (0.0, 1.0), False,
                    "independent observations (ranks only)",
-                   _omnibus(kgroups.epsilon_squared_h), kgroups.epsilon_squared_h_values),
+                   _omnibus(kgroups.epsilon_squared_h), kgroups.epsilon_squared_h_values,
+                   jo.epsilon_squared_h),
         EffectSpec("eta_squared_h", "variance_explained", 0.0, None, False,
                    "independent observations (ranks only); can fall below zero",
-                   _omnibus(kgroups.eta_squared_h), kgroups.eta_squared_h_values),
+                   _omnibus(kgroups.eta_squared_h), kgroups.eta_squared_h_values,
+                   jo.eta_squared_h),
         EffectSpec("eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
                    "normal groups with equal variances; biased upward in small samples",
-                   _omnibus(kgroups.eta_squared), kgroups.eta_squared_values),
+                   _omnibus(kgroups.eta_squared), kgroups.eta_squared_values,
+                   jo.eta_squared),
         EffectSpec("omega_squared", "variance_explained", 0.0, None, False,
                    "normal groups with equal variances; can fall below zero",
-                   _omnibus(kgroups.omega_squared), kgroups.omega_squared_values),
+                   _omnibus(kgroups.omega_squared), kgroups.omega_squared_values,
+                   jo.omega_squared),
     )
 
 
@@ -160,11 +167,11 @@ def k_repeated_effects() -> tuple[EffectSpec, ...]:
     return (
         EffectSpec("kendall_w", "agreement", 0.0, (0.0, 1.0), False,
                    "participants independent of each other (ranks within participant)",
-                   _rows_omnibus(kgroups.kendall_w), kgroups.kendall_w_values),
+                   _rows_omnibus(kgroups.kendall_w), kgroups.kendall_w_values, jo.kendall_w),
         EffectSpec("generalized_eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
                    "normal data; sphericity for the F test beside it",
                    _rows_omnibus(kgroups.generalized_eta_squared),
-                   kgroups.generalized_eta_squared_values),
+                   kgroups.generalized_eta_squared_values, jo.generalized_eta_squared),
     )
 
 
