@@ -13,8 +13,9 @@ Intervals after removal: for an effect whose interval is analytic, the interval 
 exactly on the reduced data. For an effect whose interval is the bootstrap's, the bootstrap is not
 rerun per case; its interval is shifted by the change in the estimate, and the output says so.
 Per case, exact recomputation is done for every unit when there are at most EXACT_ALL_UNITS, and
-otherwise for the units whose shifted interval ends within a quarter of the interval's width of
-the no-effect value (the only ones whose status can plausibly change).
+otherwise for the units (at most EXACT_NEAR_MAX, nearest first) whose shifted interval ends within
+a quarter of the interval's width of the no-effect value (the only ones whose status can
+plausibly change); the others keep the shifted interval.
 
 Fragility: units are removed one at a time, each time the one whose removal moves the estimate
 furthest toward the no-effect value, with the leave-one-out values recomputed exactly on the
@@ -22,15 +23,19 @@ reduced data at every step (the exact fast path when the effect has one; for eff
 and more than ADAPTIVE_MAX_UNITS units, the order of the first leave-one-out pass is kept and only
 the estimate is recomputed at each step); among equally good candidates the one on the earlier
 file line goes first, so the count does not depend on which group is named first.
+Each step costs a pass over all units, so the search runs at most `step_limit(units)` steps:
+MAX_STEPS, or fewer for large samples (FRAGILITY_WORK unit-steps, never fewer than MIN_STEPS);
+the limit is reported with each count.
 `fragility_sign` counts the removals until the estimate
 reaches or crosses the no-effect value; `fragility_null` those until the interval contains it
 (0 when it already does). Greedy counts are upper bounds on the true minimum. A search stops when a
-group would fall below its minimum size or after MAX_STEPS removals; the count is then null with
+group would fall below its minimum size or at the step limit; the count is then null with
 `reached: false`.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -38,13 +43,22 @@ from dataclasses import dataclass
 import numpy as np
 
 from auditor.effects import EffectSpec
-from auditor.magnitude import magnitude_label
+from auditor.magnitude import magnitude_levels
 from auditor.resampling import leave_one_out_units
 from auditor.results import Effect, _Plain, plain
 
 EXACT_ALL_UNITS = 300
+EXACT_NEAR_MAX = 100
 ADAPTIVE_MAX_UNITS = 400
 MAX_STEPS = 200
+MIN_STEPS = 20
+FRAGILITY_WORK = 2_000_000
+
+
+def step_limit(units: int) -> int:
+    """Most removals the fragility search tries: MAX_STEPS, fewer when each step is a pass over
+    more than FRAGILITY_WORK / MAX_STEPS units, never fewer than MIN_STEPS."""
+    return int(min(MAX_STEPS, max(MIN_STEPS, FRAGILITY_WORK // max(units, 1))))
 
 
 @dataclass(frozen=True)
@@ -64,6 +78,7 @@ class Fragility(_Plain):
     rows: tuple[int, ...]
     reached: bool
     interval_rule: str | None = None
+    step_limit: int | None = None
 
 
 @dataclass(frozen=True)
@@ -83,13 +98,36 @@ class EffectInfluence(_Plain):
 
 @dataclass(frozen=True)
 class Influence(_Plain):
+    """Summaries per effect and the per-case table, held as columns (one entry per unit, in file
+    line order) so that large samples stay compact; `cases` lists it row by row."""
+
     unit: str
     effects: tuple[EffectInfluence, ...]
-    cases: tuple[dict, ...]
+    rows: np.ndarray
+    groups: tuple[str, ...]
+    values: np.ndarray | None
+    changes: dict[str, np.ndarray]
+    standardized: dict[str, np.ndarray]
+
+    @property
+    def cases(self) -> list[dict]:
+        def number(x):
+            x = float(x)
+            return x if math.isfinite(x) else None
+
+        out = []
+        for i, row in enumerate(self.rows.tolist()):
+            out.append({
+                "row": row, "group": self.groups[i],
+                "value": None if self.values is None else number(self.values[i]),
+                "change": {k: number(v[i]) for k, v in self.changes.items()},
+                "standardized_change": {k: number(v[i]) for k, v in self.standardized.items()},
+            })
+        return out
 
     def to_dict(self):
         return {"unit": self.unit, "effects": {e.effect: plain(e) for e in self.effects},
-                "cases": [plain(c) for c in self.cases]}
+                "cases": self.cases}
 
 
 def _side(value: float, null: float) -> int:
@@ -123,16 +161,21 @@ def _interval_contains(spec: EffectSpec, effect: Effect, reduced, level: float,
     return effect.ci_low + shift <= spec.null_value <= effect.ci_high + shift
 
 
-def _rule(effect: Effect) -> str:
+def _rule(effect: Effect, per_case: bool = False) -> str:
     if effect.ci_method == "bca_bootstrap":
         return "bootstrap interval shifted by the change in the estimate (not rerun per case)"
-    return f"{effect.ci_method} interval recomputed exactly on the reduced data"
+    rule = f"{effect.ci_method} interval recomputed exactly on the reduced data"
+    if per_case:
+        rule += (f" (for every unit when there are at most {EXACT_ALL_UNITS}; otherwise for the"
+                 f" {EXACT_NEAR_MAX} whose shifted interval ends nearest the no-effect value,"
+                 " the others shifted)")
+    return rule
 
 
 def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.ndarray, ...],
                      units: Units, level: float) -> EffectInfluence:
     """Leave-one-out summary, flags and fragility of one effect (see the module docstring)."""
-    rule = _rule(effect)
+    rule = _rule(effect, per_case=True)
     if effect.estimate is None:
         empty = Fragility(None, (), False)
         return EffectInfluence(effect.name, None, None, None, None, (), (), (), empty, empty, rule)
@@ -151,45 +194,60 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     top_row = int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))]) if finite.any() else None
 
     side = _side(theta, null)
-    label = magnitude_label(spec.name, theta)
-    base_contains = (None if effect.ci_low is None
-                     else effect.ci_low <= null <= effect.ci_high)
-    total = int(sum(v.size for v in loo))
-    sign_flips, interval_flips, label_changes = [], [], []
-    width = (effect.ci_high - effect.ci_low) if effect.ci_low is not None else 0.0
-    for j, values in enumerate(loo):
-        for i, value in enumerate(values):
-            if not math.isfinite(value):
-                continue
-            row = int(units.rows[j][i])
-            if _side(value, null) != side:
-                sign_flips.append(row)
-            if magnitude_label(spec.name, float(value)) != label:
-                label_changes.append(row)
-            if base_contains is None:
-                continue
-            shift = value - theta
-            lo, hi = effect.ci_low + shift, effect.ci_high + shift
-            near = min(abs(lo - null), abs(hi - null)) <= 0.25 * width
-            if effect.ci_method != "bca_bootstrap" and (total <= EXACT_ALL_UNITS or near):
-                contains = _interval_contains(spec, effect, _delete(samples, j, i), level,
-                                              float(value))
-            else:
-                contains = lo <= null <= hi
-            if contains is not None and contains != base_contains:
-                interval_flips.append(row)
+    values = np.concatenate(loo)
+    strata = np.concatenate([np.full(v.size, j) for j, v in enumerate(loo)])
+    positions = np.concatenate([np.arange(v.size) for v in loo])
+    total = int(values.size)
+    with np.errstate(invalid="ignore"):
+        sides = np.sign(values - null).astype(int)
+    sign_flips = all_rows[finite & (sides != side)]
+    levels = magnitude_levels(spec.name, values)
+    label_changes = (all_rows[finite & (levels != magnitude_levels(spec.name, [theta])[0])]
+                     if levels is not None else all_rows[:0])
+    interval_flips = all_rows[:0]
+    if effect.ci_low is not None:
+        base_contains = effect.ci_low <= null <= effect.ci_high
+        width = effect.ci_high - effect.ci_low
+        with np.errstate(invalid="ignore"):
+            low, high = effect.ci_low + (values - theta), effect.ci_high + (values - theta)
+            contains = (low <= null) & (null <= high)
+            distance = np.minimum(np.abs(low - null), np.abs(high - null))
+        known = finite.copy()
+        if effect.ci_method != "bca_bootstrap":
+            near = finite & ((distance <= 0.25 * width) | (total <= EXACT_ALL_UNITS))
+            picked = np.flatnonzero(near)
+            if total > EXACT_ALL_UNITS:
+                picked = picked[np.argsort(distance[picked], kind="stable")][:EXACT_NEAR_MAX]
+            for k in picked:
+                j, i = int(strata[k]), int(positions[k])
+                exact = _interval_contains(spec, effect, _delete(samples, j, i), level,
+                                           float(values[k]))
+                if exact is None:
+                    known[k] = False
+                else:
+                    contains[k] = exact
+        interval_flips = all_rows[known & (contains != base_contains)]
     frag_sign, frag_null = fragility(spec, effect, samples, units, level)
     return EffectInfluence(
         effect=effect.name, jackknife_se=math.sqrt(se2), bias=bias, max_abs_change=max_change,
-        most_influential_row=top_row, sign_flips=tuple(sorted(sign_flips)),
-        interval_flips=tuple(sorted(interval_flips)), label_changes=tuple(sorted(label_changes)),
+        most_influential_row=top_row, sign_flips=tuple(sorted(sign_flips.tolist())),
+        interval_flips=tuple(sorted(interval_flips.tolist())),
+        label_changes=tuple(sorted(label_changes.tolist())),
         fragility_sign=frag_sign, fragility_null=frag_null, interval_rule=rule,
     )
 
 
 def fragility(spec: EffectSpec, effect: Effect, samples, units: Units, level: float):
     """Greedy counts of removals until the sign flips and until the interval holds the no-effect
-    value (module docstring). Returns (fragility_sign, fragility_null)."""
+    value (module docstring). Returns (fragility_sign, fragility_null), each with the search's
+    step limit."""
+    limit = step_limit(sum(s.shape[0] for s in samples))
+    found = _greedy_search(spec, effect, samples, units, level, limit)
+    return tuple(dataclasses.replace(f, step_limit=limit) for f in found)
+
+
+def _greedy_search(spec: EffectSpec, effect: Effect, samples, units: Units, level: float,
+                   limit: int):
     theta, null = effect.estimate, spec.null_value
     side = _side(theta, null)
     rule = _rule(effect)
@@ -205,7 +263,7 @@ def fragility(spec: EffectSpec, effect: Effect, samples, units: Units, level: fl
     adaptive = spec.leave_one_out is not None or total <= ADAPTIVE_MAX_UNITS
     static_scores = None  # per stratum: first-pass scores, by original index
     sign_result = None
-    for _ in range(MAX_STEPS):
+    for _ in range(limit):
         current = tuple(s[k] for s, k in zip(samples, keep))
         if adaptive or static_scores is None:
             loo = _loo(spec, current)
@@ -265,23 +323,20 @@ def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samp
                                        loo_by_name.get(spec.name, ()), units, level)
                       for spec in specs)
     se = {s.effect: s.jackknife_se for s in summaries}
-    cases = []
-    for j, rows in enumerate(units.rows):
-        for i, row in enumerate(rows):
-            changes, standardized = {}, {}
-            for spec in specs:
-                loo = loo_by_name.get(spec.name)
-                theta = by_name[spec.name].estimate
-                if loo is None or theta is None:
-                    continue
-                v = float(loo[j][i])
-                change = v - theta if math.isfinite(v) else None
-                changes[spec.name] = change
-                scale = se.get(spec.name)
-                standardized[spec.name] = (change / scale if change is not None and scale
-                                           else None)
-            value = None if units.values[j] is None else float(units.values[j][i])
-            cases.append({"row": int(row), "group": units.groups[j][i], "value": value,
-                          "change": changes, "standardized_change": standardized})
-    cases.sort(key=lambda c: c["row"])
-    return Influence(units.kind, summaries, tuple(cases))
+    rows = np.concatenate(units.rows).astype(np.int64)
+    order = np.argsort(rows, kind="stable")
+    labels = tuple(label for group in units.groups for label in group)
+    values = (None if any(v is None for v in units.values)
+              else np.concatenate([np.asarray(v, dtype=float) for v in units.values])[order])
+    changes, standardized = {}, {}
+    for spec in specs:
+        loo = loo_by_name.get(spec.name)
+        theta = by_name[spec.name].estimate
+        if loo is None or theta is None:
+            continue
+        change = (np.concatenate(loo) - theta)[order]
+        changes[spec.name] = change
+        scale = se.get(spec.name)
+        standardized[spec.name] = change / scale if scale else np.full(change.size, np.nan)
+    return Influence(units.kind, summaries, rows[order], tuple(labels[i] for i in order),
+                     values, changes, standardized)

@@ -9,6 +9,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 
 @dataclass(frozen=True)
 class Benchmarks:
@@ -55,3 +57,17 @@ def magnitude_label(name: str, value: float | None,
     if size >= b.small:
         return "small"
     return "negligible"
+
+
+LABELS = ("negligible", "small", "medium", "large")
+
+
+def magnitude_levels(name: str, values, benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS):
+    """Vectorised `magnitude_label`: the index into LABELS of each value (NaN gives -1), or None
+    when the index has no benchmarks."""
+    b = benchmarks.get(name)
+    if b is None:
+        return None
+    size = np.abs(np.asarray(values, dtype=float) - b.null_value)
+    levels = ((size >= b.small).astype(int) + (size >= b.medium) + (size >= b.large))
+    return np.where(np.isfinite(size), levels, -1)

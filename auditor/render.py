@@ -122,8 +122,10 @@ def _count(f) -> str:
 
 def _influence(influence, out: list[str], top: int = 3) -> None:
     unit = influence.unit
-    out.append(f"Single {unit}s (leave-one-out; fragility = {unit}s removed, greedily, until the"
-               " sign flips / the interval holds the no-effect value)")
+    limits = {e.fragility_sign.step_limit for e in influence.effects} - {None}
+    upto = f" (at most {max(limits)})" if limits else ""
+    out.append(f"Single {unit}s (leave-one-out; fragility = {unit}s removed, greedily{upto}, until"
+               " the sign flips / the interval holds the no-effect value)")
     width = max([17] + [len(e.effect) for e in influence.effects])
     out.append(f"  {'index':<{width}} {'jackknife SE':>12} {'most influential':>17}"
                f" {'fragility sign':>15} {'fragility interval':>19}")

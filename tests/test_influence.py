@@ -27,6 +27,7 @@ from scipy import optimize, special, stats
 from scipy.stats import mstats
 
 from auditor.errors import UndefinedEffectWarning
+from auditor.influence import MAX_STEPS, MIN_STEPS, step_limit
 from auditor.magnitude import magnitude_label
 from auditor.pipeline import audit
 
@@ -594,7 +595,8 @@ def test_planted_extreme_case_alone_drives_d():
     assert data.estimate("cohen_d") > 0 > data.estimate("cohen_d", [line])
     effects = data.influence["effects"]
     frag = effects["cohen_d"]["fragility_sign"]
-    assert frag == {"count": 1, "rows": [line], "reached": True, "interval_rule": None}
+    assert frag == {"count": 1, "rows": [line], "reached": True, "interval_rule": None,
+                    "step_limit": MAX_STEPS}
     assert effects["cohen_d"]["most_influential_row"] == line
     assert effects["mean_difference"]["most_influential_row"] == line
     assert effects["mean_difference"]["fragility_sign"]["rows"] == [line]
@@ -880,7 +882,8 @@ def test_influence_json_for_every_design(design, frame, kwargs, unit):
         assert set(info) == keys and info["effect"] == name
         assert info["jackknife_se"] > 0 and math.isfinite(info["bias"])
         for frag in (info["fragility_sign"], info["fragility_null"]):
-            assert set(frag) == {"count", "rows", "reached", "interval_rule"}
+            assert set(frag) == {"count", "rows", "reached", "interval_rule", "step_limit"}
+            assert frag["step_limit"] == step_limit(len(infl["cases"]))
             assert (frag["count"] is None) == (not frag["reached"])
             assert frag["count"] is None or frag["count"] == len(frag["rows"])
     # one entry per used row (independent) or per complete participant (repeated), sorted
@@ -981,3 +984,18 @@ def test_tied_candidates_do_not_make_fragility_depend_on_group_order():
               ba["cliff_delta"]["fragility_sign"]["count"])
     assert min(counts) >= minimum
     assert counts[0] == counts[1], counts
+
+
+def test_fragility_search_is_bounded_by_a_step_limit_that_shrinks_with_size():
+    assert step_limit(10) == MAX_STEPS and step_limit(4_000) == MAX_STEPS
+    assert step_limit(40_000) == 50 and step_limit(400_000) == MIN_STEPS
+    # a clear difference in 2 x 6,000 cases: no sign flip within the limit, which is reported
+    rng = np.random.default_rng(3)
+    n = 6_000
+    frame = pd.DataFrame({"g": ["a"] * n + ["b"] * n,
+                          "y": np.r_[rng.normal(1.0, 1, n), rng.normal(0, 1, n)]})
+    result = audit(frame, outcome="y", group="g", resamples=200)
+    for info in result.to_dict()["influence"]["effects"].values():
+        frag = info["fragility_sign"]
+        assert frag["step_limit"] == step_limit(2 * n) < MAX_STEPS
+        assert (frag["count"], frag["reached"]) == (None, False)
