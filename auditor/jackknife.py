@@ -22,13 +22,22 @@ from auditor import paired
 from auditor.moments import mean_var
 
 
+def _moments(x: np.ndarray):
+    """(mean, deviations from it, M2 = sum of squared deviations) by two passes."""
+    m = float(np.mean(x)) if x.size else np.nan
+    c = x - m
+    return m, c, float(np.dot(c, c))
+
+
 def _drop_moments(x: np.ndarray):
-    """For each i: (mean, M2) of x without x_i, and the new size."""
+    """For each i: (mean, M2) of x without x_i, and the new size. With c_i = x_i - mean:
+    mean' = mean - c_i / (n - 1) and M2' = M2 - c_i^2 n / (n - 1) (reverse Welford)."""
     n = x.size
-    m, v, _ = mean_var(x)
-    m2 = v * (n - 1)
-    m_new = (n * m - x) / (n - 1) if n > 1 else np.full(n, np.nan)
-    m2_new = np.maximum(m2 - (x - m) * (x - m_new), 0.0)
+    if n < 2:
+        return np.full(n, np.nan), np.full(n, np.nan), n - 1
+    m, c, m2 = _moments(x)
+    m_new = m - c / (n - 1)
+    m2_new = np.maximum(m2 - c * c * (n / (n - 1)), 0.0)
     return m_new, m2_new, n - 1
 
 
@@ -38,21 +47,25 @@ def _var(m2, n):
 
 
 def _centre(*samples):
-    """The samples shifted by their pooled median, so running sums lose no precision on data
-    such as 1e6 +- 1e-3 (every index here is unchanged by a common shift)."""
-    pivot = float(np.median(np.concatenate([np.ravel(s) for s in samples])))
+    """The samples shifted by one of their values (the middle one of the first sample, its median
+    when sorted), so running sums lose no precision on data such as 1e6 +- 1e-3 (every index here
+    is unchanged by a common shift)."""
+    first = np.ravel(samples[0])
+    pivot = float(first[first.size // 2]) if first.size else 0.0
     return tuple(s - pivot for s in samples)
 
 
 def _two_group_moments(a, b):
-    """Per stratum: arrays of (mean_A, var_A, n_A, mean_B, var_B, n_B) after each removal."""
+    """Per stratum: (mean_A, var_A, n_A, mean_B, var_B, n_B) after each removal; the group that
+    keeps all its values contributes scalars."""
     a, b = _centre(a, b)
-    ma, va, na = mean_var(a)
-    mb, vb, nb = mean_var(b)
+    ma, _, m2a = _moments(a)
+    mb, _, m2b = _moments(b)
+    va, vb = _var(m2a, a.size), _var(m2b, b.size)
     ma_i, m2a_i, na_i = _drop_moments(a)
     mb_j, m2b_j, nb_j = _drop_moments(b)
-    drop_a = (ma_i, _var(m2a_i, na_i), na_i, np.full(a.size, mb), np.full(a.size, vb), nb)
-    drop_b = (np.full(b.size, ma), np.full(b.size, va), na, mb_j, _var(m2b_j, nb_j), nb_j)
+    drop_a = (ma_i, _var(m2a_i, na_i), na_i, mb, vb, b.size)
+    drop_b = (ma, va, a.size, mb_j, _var(m2b_j, nb_j), nb_j)
     return drop_a, drop_b
 
 
@@ -115,13 +128,34 @@ def _placements_any_order(x: np.ndarray, other_sorted: np.ndarray) -> np.ndarray
     return out
 
 
+def _merged_counts(first: np.ndarray, second: np.ndarray):
+    """For sorted samples: per value of `first`, the number of `second` values below it, and per
+    value of `second`, the number of `first` values at or below it. One stable merge (a stable
+    sort of two sorted runs is a linear merge) puts ties of `first` before those of `second`."""
+    n1, n2 = first.size, second.size
+    order = np.argsort(np.concatenate([first, second]), kind="stable")
+    position = np.empty(n1 + n2, dtype=np.int64)
+    position[order] = np.arange(n1 + n2)
+    return position[:n1] - np.arange(n1), position[n1:] - np.arange(n2)
+
+
+def _placements_sorted(sa: np.ndarray, sb: np.ndarray):
+    """Placements of sorted A among sorted B and of B among A by two merges instead of four binary
+    searches: #(B < a) + #(B = a) / 2 and #(A < b) + #(A = b) / 2."""
+    b_below_a, a_upto_b = _merged_counts(sa, sb)
+    a_below_b, b_upto_a = _merged_counts(sb, sa)
+    return 0.5 * (b_below_a + b_upto_a), 0.5 * (a_below_b + a_upto_b)
+
+
 def superiority_counts(a, b):
     """U_A after removing each a_i, then each b_j: U - (a_i's placement among B), and
     U - (n_A - b_j's placement among A)."""
-    sa = a if _is_sorted(a) else np.sort(a)
-    sb = b if _is_sorted(b) else np.sort(b)
-    pa = _placements_any_order(a, sb)
-    pb = _placements_any_order(b, sa)
+    if _is_sorted(a) and _is_sorted(b):
+        pa, pb = _placements_sorted(a, b)
+    else:
+        sa, sb = np.sort(a), np.sort(b)
+        pa = _placements_any_order(a, sb)
+        pb = _placements_any_order(b, sa)
     u = float(pa.sum())
     return u - pa, u - (a.size - pb)
 

@@ -22,6 +22,7 @@ import numpy as np
 from scipy import stats
 
 from auditor.moments import mean_var
+from auditor.pair_sums import pair_sums
 from auditor.parametric import Estimate, noncentral_t_limits
 from auditor.ranks import midranks, tie_sizes
 from auditor.results import Interval
@@ -268,22 +269,23 @@ def hodges_lehmann(a, b, level, digits=12) -> Estimate:
     [W_(k), W_(M+1-k)] from the signed-rank distribution; assumes symmetric differences for the
     interval's coverage."""
     d = differences(_pair(a, b), digits)
-    walsh = np.sort(walsh_averages(d))
-    value = float(np.median(walsh))
+    sums = pair_sums(d)  # Walsh sums d_i + d_j, i <= j, selected without listing them all
+    m = sums.size
+    value = (sums.kth(m // 2 + 1) / 2.0 if m % 2
+             else (sums.kth(m // 2) + sums.kth(m // 2 + 1)) / 4.0)
     n = d.size
     _, counts = np.unique(np.abs(d), return_counts=True)
     tie_term = float(np.sum(counts.astype(float) ** 3 - counts))
     untied = bool(np.all(counts == 1) and np.all(d != 0))
     k, method, achieved = walsh_interval_order(n, level, untied and n <= EXACT_MAX_N, tie_term)
-    m = walsh.size
     notes = [f"order statistics k = {k} and {m + 1 - k} of {m} Walsh averages"
              f" ({method.replace('_', ' ')})"]
     if achieved is not None:
         notes.append(f"exact confidence {achieved:.4f}")
     if not untied:
         notes.append("ties or zero differences: coverage of the interval is approximate")
-    return Estimate(value, Interval("distribution_free", float(walsh[k - 1]), float(walsh[m - k]),
-                                    level), None, tuple(notes))
+    low, high = sums.kth(k) / 2.0, sums.kth(m + 1 - k) / 2.0
+    return Estimate(value, Interval("distribution_free", low, high, level), None, tuple(notes))
 
 
 def sign_test(d: np.ndarray) -> dict:

@@ -21,11 +21,11 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from auditor.pair_sums import pair_sums
 from auditor.parametric import Estimate
 from auditor.results import Interval
 
 EXACT_MAX_PAIRS = 2500  # exact Mann-Whitney null distribution up to n_A n_B = 2500, no ties
-STALLED_MAX_CANDIDATES = 20_000_000  # candidates listed exactly when bisection stalls on ties
 
 
 # ------------------------------------------------------------------ ranks along the last axis
@@ -101,59 +101,21 @@ def r_from_z_values(a, b):
 
 
 def kth_pairwise_difference(a_sorted: np.ndarray, b_sorted: np.ndarray, k: int) -> float:
-    """The k-th smallest (1-based) of the n_A n_B differences a_i - b_j, without forming them all.
-
-    Bisection on the value keeps count(d <= lo) < k <= count(d <= hi), where counting takes
-    O(n log n) with binary search on the sorted samples; once few candidates lie in (lo, hi] they
-    are listed and the answer is picked among them. Memory is O(n_A + n_B + candidates).
-    """
-    a, b = a_sorted, b_sorted
-    m = b.size
-
-    def count_le(t: float) -> int:  # number of pairs with a_i - b_j <= t, i.e. b_j >= a_i - t
-        return int(m * a.size - np.searchsorted(b, a - t, side="left").sum())
-
-    lo, hi = float(a[0] - b[-1]), float(a[-1] - b[0])
-    pad = max(abs(lo), abs(hi), 1.0) * 1e-9
-    lo, hi = lo - pad, hi + pad  # the counts below, not the arithmetic, define the bracket
-    c_lo, c_hi = count_le(lo), count_le(hi)
-    while c_lo >= k:
-        lo -= 2 * pad + abs(lo)
-        c_lo = count_le(lo)
-    while c_hi < k:
-        hi += 2 * pad + abs(hi)
-        c_hi = count_le(hi)
-    budget = 4 * (a.size + m)
-    while c_hi - c_lo > budget:
-        mid = lo + (hi - lo) / 2
-        if not lo < mid < hi:
-            break  # the bracket cannot shrink: its candidates are (nearly) all one tied value
-        c_mid = count_le(mid)
-        if c_mid >= k:
-            hi, c_hi = mid, c_mid
-        else:
-            lo, c_lo = mid, c_mid
-    left = np.searchsorted(b, a - hi, side="left")
-    right = np.searchsorted(b, a - lo, side="left")
-    counts = right - left
-    total = int(counts.sum())  # = c_hi - c_lo >= 1
-    if total > STALLED_MAX_CANDIDATES:  # a huge tie block: every candidate is within an ulp
-        first = int(np.flatnonzero(counts)[0])
-        return float(a[first] - b[left[first]])
-    i_idx = np.repeat(np.arange(a.size), counts)
-    starts = np.repeat(np.cumsum(counts) - counts, counts)
-    j_idx = np.arange(total) - starts + np.repeat(left, counts)
-    candidates = a[i_idx] - b[j_idx]
-    return float(np.partition(candidates, k - c_lo - 1)[k - c_lo - 1])
+    """The k-th smallest (1-based) of the n_A n_B differences a_i - b_j, without forming them all
+    (selection among pair sums a_i + (-b_j), `pair_sums.PairSums.kth`; O(n) memory)."""
+    return pair_sums(a_sorted, -b_sorted).kth(k)
 
 
 def pairwise_median(a_sorted: np.ndarray, b_sorted: np.ndarray) -> float:
     """Median of all a_i - b_j (the Hodges-Lehmann two-sample shift, Hodges & Lehmann 1963)."""
-    total = a_sorted.size * b_sorted.size
+    return _median_of(pair_sums(a_sorted, -b_sorted))
+
+
+def _median_of(sums) -> float:
+    total = sums.size
     if total % 2:
-        return kth_pairwise_difference(a_sorted, b_sorted, total // 2 + 1)
-    return 0.5 * (kth_pairwise_difference(a_sorted, b_sorted, total // 2)
-                  + kth_pairwise_difference(a_sorted, b_sorted, total // 2 + 1))
+        return sums.kth(total // 2 + 1)
+    return 0.5 * (sums.kth(total // 2) + sums.kth(total // 2 + 1))
 
 
 def hodges_lehmann_values(a, b):
@@ -232,8 +194,8 @@ def hodges_lehmann(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     [D_(k), D_(mn+1-k)] from the Mann-Whitney distribution. Assumes the two distributions have
     the same shape (a pure shift) for the interval's coverage; the estimate itself is the median
     pairwise difference whatever the shapes."""
-    sa, sb = np.sort(a), np.sort(b)
-    value = pairwise_median(sa, sb)
+    sums = pair_sums(a, -b)
+    value = _median_of(sums)
     correction = float(stats.tiecorrect(np.concatenate([a, b])))
     order = shift_interval_order(a.size, b.size, level, correction)
     mn = a.size * b.size
@@ -246,8 +208,7 @@ def hodges_lehmann(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
                          " the widest interval (all differences) is given")
     if correction < 1.0:
         notes.append("ties present: coverage of the distribution-free interval is approximate")
-    low = kth_pairwise_difference(sa, sb, order.k)
-    high = kth_pairwise_difference(sa, sb, mn + 1 - order.k)
+    low, high = sums.kth(order.k), sums.kth(mn + 1 - order.k)
     return Estimate(value, Interval("distribution_free", low, high, level), None, tuple(notes))
 
 

@@ -15,128 +15,16 @@ found by the selection below), and for each distinct removed value the median's 
 by binary search over the window, counting the removed sums below a candidate by binary search:
 O(n log^2 n) time and O(n) memory instead of O(n^3 log n) for refitting every time.
 
-Selection of the k-th smallest sum (Johnson & Mizoguchi 1978 give an O(n log n) algorithm;
-here a simpler bisection on the value): counts by binary search keep count(<= lo) < k <=
-count(<= hi) until few candidates remain, which are then listed with their multiplicities.
+Selection of the k-th smallest sum: `pair_sums`.
 """
 
 from __future__ import annotations
-
-from dataclasses import dataclass
 
 import numpy as np
 from scipy import stats
 
 from auditor import paired, ranks
-
-_SMALL_BRACKET = 4  # list the candidates once at most this many per distinct value remain
-
-
-def _prefix(u: np.ndarray, v: np.ndarray, s: np.ndarray, strict: bool) -> np.ndarray:
-    """For each u_p and bound s_p: how many of the ascending values v satisfy fl(u_p + v) <= s_p
-    (strict: < s_p). Binary search on s - u, then a correction for rounding, which is exact
-    because fl(u + v) is non-decreasing in v."""
-    u, s = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(s, dtype=float))
-    q = np.searchsorted(v, s - u, side="left" if strict else "right")
-    m = v.size
-
-    def belongs(idx):
-        total = u + v[np.clip(idx, 0, m - 1)]
-        return total < s if strict else total <= s
-
-    while True:
-        down = (q > 0) & ~belongs(q - 1)
-        if not down.any():
-            break
-        q = q - down
-    while True:
-        up = (q < m) & belongs(q)
-        if not up.any():
-            break
-        q = q + up
-    return q
-
-
-@dataclass(frozen=True)
-class PairSums:
-    """The multiset {fl(u_p + v_q)} over pairs of units, held as distinct values with counts.
-
-    `walsh` False: every unit of u with every unit of v (two samples, v = the other group
-    negated). `walsh` True: u and v are the same sample and only pairs of units i <= j count.
-    """
-
-    u: np.ndarray
-    u_counts: np.ndarray
-    v: np.ndarray
-    v_counts: np.ndarray
-    walsh: bool
-
-    @property
-    def v_cumulative(self) -> np.ndarray:
-        return np.concatenate([[0], np.cumsum(self.v_counts)])
-
-    @property
-    def size(self) -> int:
-        nu, nv = int(self.u_counts.sum()), int(self.v_counts.sum())
-        return nu * (nu + 1) // 2 if self.walsh else nu * nv
-
-    def count_at_most(self, s: float) -> int:
-        """Number of elements <= s."""
-        q = _prefix(self.u, self.v, np.full(self.u.size, s), strict=False)
-        ordered = int(np.dot(self.u_counts, self.v_cumulative[q]))
-        if not self.walsh:
-            return ordered
-        diagonal = int(self.u_counts[self.u + self.u <= s].sum())
-        return (ordered + diagonal) // 2
-
-    def listed(self, low: float, high: float, include_low: bool):
-        """Distinct-pair elements with low < s <= high (low <= s with include_low), and their
-        multiplicities."""
-        q0 = _prefix(self.u, self.v, np.full(self.u.size, low), strict=include_low)
-        q1 = _prefix(self.u, self.v, np.full(self.u.size, high), strict=False)
-        if self.walsh:
-            q0 = np.maximum(q0, np.arange(self.u.size))
-        counts = np.clip(q1 - q0, 0, None)
-        p = np.repeat(np.arange(self.u.size), counts)
-        starts = np.repeat(np.cumsum(counts) - counts, counts)
-        q = np.arange(int(counts.sum())) - starts + np.repeat(q0, counts)
-        values = self.u[p] + self.v[q]
-        weights = self.u_counts[p] * self.v_counts[q]
-        if self.walsh:
-            same = p == q
-            c = self.u_counts[p[same]]
-            weights[same] = c * (c + 1) // 2
-        return values, weights
-
-    def kth(self, k: int) -> float:
-        """The k-th smallest element (1-based)."""
-        lo = float(np.nextafter(self.u[0] + self.v[0], -np.inf))
-        hi = float(self.u[-1] + self.v[-1])
-        c_lo, c_hi = 0, self.size
-        budget = _SMALL_BRACKET * (self.u.size + self.v.size)
-        while c_hi - c_lo > budget:
-            mid = lo / 2 + hi / 2
-            if not lo < mid < hi:
-                return hi  # (lo, hi] holds one float: every candidate equals hi
-            c = self.count_at_most(mid)
-            if c >= k:
-                hi, c_hi = mid, c
-            else:
-                lo, c_lo = mid, c
-        values, weights = self.listed(lo, hi, include_low=False)
-        order = np.argsort(values, kind="stable")
-        position = np.searchsorted(np.cumsum(weights[order]), k - c_lo, side="left")
-        return float(values[order][position])
-
-
-def pair_sums(u: np.ndarray, v: np.ndarray | None = None) -> PairSums:
-    """Two samples (u, v): sums u_i + v_j. One sample (v None): Walsh sums u_i + u_j, i <= j."""
-    uu, cu = np.unique(u, return_counts=True)
-    if v is None:
-        return PairSums(uu, cu.astype(np.int64), uu, cu.astype(np.int64), True)
-    vv, cv = np.unique(v, return_counts=True)
-    return PairSums(uu, cu.astype(np.int64), vv, cv.astype(np.int64), False)
-
+from auditor.pair_sums import PairSums, pair_sums, prefix_counts
 
 def median_without_each(sums: PairSums) -> np.ndarray:
     """For each distinct value u_p: the median of the sums after removing one unit of value u_p
@@ -162,7 +50,7 @@ def median_without_each(sums: PairSums) -> np.ndarray:
         hi = np.full(sums.u.size, window.size - 1, dtype=np.int64)
         while np.any(lo < hi):
             mid = (lo + hi) // 2
-            gone = cumulative[_prefix(sums.u, sums.v, window[mid], strict=False)]
+            gone = cumulative[prefix_counts(sums.u, sums.v, window[mid], strict=False)]
             enough = at_most[mid] - gone >= k
             hi = np.where(enough, mid, hi)
             lo = np.where(enough, lo, mid + 1)
@@ -247,7 +135,7 @@ def hodges_lehmann_by_counts(a: np.ndarray, b: np.ndarray):
     budget = max(8, int(_BRACKET_UNITS * (u.size + v.size)))
 
     def weighted_at_most(wu, cum_v, t):
-        q = _prefix(u[None, :], v, t[:, None], strict=False)
+        q = prefix_counts(u[None, :], v, t[:, None], strict=False)
         return q, np.einsum("ij,ij->i", wu, np.take_along_axis(cum_v, q, axis=1))
 
     def statistic(ca: np.ndarray, cb: np.ndarray) -> np.ndarray:
