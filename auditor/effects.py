@@ -21,7 +21,7 @@ from auditor import jackknife as jk
 from auditor import jackknife_omnibus as jo
 from auditor import jackknife_signed_ranks as jsr
 from auditor import shifts
-from auditor import kgroups, paired, ranks
+from auditor import counting, kgroups, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
 
@@ -38,6 +38,12 @@ class EffectSpec:
     values: Callable[..., np.ndarray]
     leave_one_out: Callable[..., tuple[np.ndarray, ...]] | None = None  # exact fast path
     by_counts: Callable[..., Callable[..., np.ndarray]] | None = None  # samples -> count statistic
+    # (other effect, map): bootstrap and leave-one-out values are map(other's), e.g. delta = 2A - 1
+    derived_from: tuple[str, Callable[[np.ndarray], np.ndarray]] | None = None
+
+
+def _two_a_minus_one(a: np.ndarray) -> np.ndarray:
+    return 2.0 * a - 1.0
 
 
 def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
@@ -45,36 +51,39 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
     delta (1 = B, 0 = A)."""
     glass_est = partial(par.glass_delta, reference=reference)
     glass_val = partial(par.glass_delta_values, reference=reference)
+    glass_counts = partial(counting.glass_delta_counts, reference=reference)
     normal_eq = "normal distributions with equal variances"
     return (
         EffectSpec("mean_difference", "mean", 0.0, None, True,
                    "interval: near-normal means (large n or normal data); unequal variances allowed",
-                   par.mean_difference, par.mean_difference_values, jk.mean_difference),
+                   par.mean_difference, par.mean_difference_values, jk.mean_difference,
+                   counting.mean_difference_counts),
         EffectSpec("cohen_d", "standardized_mean", 0.0, None, True, normal_eq,
-                   par.cohen_d, par.cohen_d_values, jk.cohen_d),
+                   par.cohen_d, par.cohen_d_values, jk.cohen_d, counting.cohen_d_counts),
         EffectSpec("hedges_g", "standardized_mean", 0.0, None, True,
                    normal_eq + "; corrects d's small-sample bias", par.hedges_g, par.hedges_g_values,
-                   jk.hedges_g),
+                   jk.hedges_g, counting.hedges_g_counts),
         EffectSpec("glass_delta", "standardized_mean", 0.0, None, True,
                    "normal data; only the reference group's SD scales the difference",
-                   glass_est, glass_val, partial(jk.glass_delta, reference=reference)),
+                   glass_est, glass_val, partial(jk.glass_delta, reference=reference), glass_counts),
         EffectSpec("d_unpooled", "standardized_mean", 0.0, None, True,
                    "normal data; unequal variances allowed", par.d_unpooled, par.d_unpooled_values,
-                   jk.d_unpooled),
+                   jk.d_unpooled, counting.d_unpooled_counts),
         EffectSpec("robust_d", "standardized_mean", 0.0, None, True,
                    "symmetric data with possible heavy tails or outliers (20% trimmed)",
-                   par.robust_d, par.robust_d_values, jk.robust_d),
+                   par.robust_d, par.robust_d_values, jk.robust_d, counting.robust_d_counts),
         EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
                    "independent observations only (ordinal outcome is enough)",
                    ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority,
                    ranks.prob_superiority_counts),
         EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts),
+                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
+                   ("prob_superiority", _two_a_minus_one)),
         EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
                    ranks.rank_biserial, ranks.rank_biserial_values, jk.rank_biserial,
-                   ranks.cliff_delta_counts),
+                   ranks.cliff_delta_counts, ("prob_superiority", _two_a_minus_one)),
         EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations; depends on N as well as on the effect",
                    ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts),

@@ -296,9 +296,16 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
     leave-one-out values by effect name)."""
     estimates = {s.name: _guarded(s, samples, level) for s in specs}
     defined = [s for s in specs if estimates[s.name].value is not None]
-    by_values = {s.name: s.values for s in defined if s.by_counts is None}
-    by_counts = {s.name: s.by_counts(*samples) for s in defined if s.by_counts is not None}
+    names = {s.name for s in defined}
+    derived = {s.name: s.derived_from for s in defined
+               if s.derived_from is not None and s.derived_from[0] in names}
+    own = [s for s in defined if s.name not in derived]
+    by_values = {s.name: s.values for s in own if s.by_counts is None}
+    by_counts = {s.name: s.by_counts(*samples) for s in own if s.by_counts is not None}
     replicates = resample_units(by_values, samples, resamples, rng, progress, by_counts)
+    for name, (source, mapping) in derived.items():
+        replicates[name] = mapping(replicates[source])
+    all_loo = leave_one_out_all(defined, samples)
     effects, notes, loo_by_name = [], [], {}
     for spec in specs:
         est = estimates[spec.name]
@@ -309,7 +316,7 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             effects.append(Effect(spec.name, spec.family, None, None, None, "none", (),
                                   spec.null_value, spec.assumes, est.reason, est.notes))
             continue
-        loo = leave_one_out_values(spec, samples)
+        loo = all_loo[spec.name]
         loo_by_name[spec.name] = loo
         boot = bca_interval(est.value, replicates[spec.name], loo, level, spec.bounds)
         intervals = tuple(iv for iv in (est.interval, boot.interval) if iv is not None)
@@ -322,6 +329,19 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             spec.assumes, None, est.notes + extra, dict(est.details),
         ))
     return tuple(effects), notes, loo_by_name
+
+
+def leave_one_out_all(specs, samples) -> dict[str, tuple[np.ndarray, ...]]:
+    """Leave-one-out values of every effect in `specs`; an effect derived from another one in
+    `specs` (delta = 2A - 1) maps the other's values instead of recomputing them."""
+    names = {s.name for s in specs}
+    out = {s.name: leave_one_out_values(s, samples) for s in specs
+           if s.derived_from is None or s.derived_from[0] not in names}
+    for s in specs:
+        if s.name not in out:
+            source, mapping = s.derived_from
+            out[s.name] = tuple(mapping(v) for v in out[source])
+    return out
 
 
 def leave_one_out_values(spec: EffectSpec, samples) -> tuple[np.ndarray, ...]:
