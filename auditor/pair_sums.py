@@ -60,11 +60,8 @@ class PairSums:
     u_counts: np.ndarray
     v: np.ndarray
     v_counts: np.ndarray
+    v_cumulative: np.ndarray  # v_cumulative[q] = number of v units with the q smallest values
     walsh: bool
-
-    @property
-    def v_cumulative(self) -> np.ndarray:
-        return np.concatenate([[0], np.cumsum(self.v_counts)])
 
     @property
     def size(self) -> int:
@@ -73,12 +70,16 @@ class PairSums:
 
     def count_at_most(self, s: float) -> int:
         """Number of elements <= s."""
+        return self._at_most(s)[0]
+
+    def _at_most(self, s: float) -> tuple[int, np.ndarray]:
+        """Number of elements <= s, and per u_p the number of v values whose sum with it is <= s."""
         q = prefix_counts(self.u, self.v, np.full(self.u.size, s), strict=False)
         ordered = int(np.dot(self.u_counts, self.v_cumulative[q]))
         if not self.walsh:
-            return ordered
+            return ordered, q
         diagonal = int(self.u_counts[self.u + self.u <= s].sum())
-        return (ordered + diagonal) // 2
+        return (ordered + diagonal) // 2, q
 
     def listed(self, low: float, high: float, include_low: bool):
         """Distinct-pair elements with low < s <= high (low <= s with include_low), and their
@@ -100,20 +101,22 @@ class PairSums:
         return values, weights
 
     def kth(self, k: int) -> float:
-        """The k-th smallest element (1-based)."""
+        """The k-th smallest element (1-based). The bracket (lo, hi] narrows until it holds few
+        distinct pairs (however many tied elements they stand for), which are then listed."""
         lo = float(np.nextafter(self.u[0] + self.v[0], -np.inf))
         hi = float(self.u[-1] + self.v[-1])
-        c_lo, c_hi = 0, self.size
+        c_lo, q_lo = 0, np.zeros(self.u.size, dtype=np.int64)
+        q_hi = np.full(self.u.size, self.v.size, dtype=np.int64)
         budget = _SMALL_BRACKET * (self.u.size + self.v.size)
-        while c_hi - c_lo > budget:
+        while int((q_hi - q_lo).sum()) > budget:
             mid = lo / 2 + hi / 2
             if not lo < mid < hi:
                 return hi  # (lo, hi] holds one float: every candidate equals hi
-            c = self.count_at_most(mid)
+            c, q = self._at_most(mid)
             if c >= k:
-                hi, c_hi = mid, c
+                hi, q_hi = mid, q
             else:
-                lo, c_lo = mid, c
+                lo, c_lo, q_lo = mid, c, q
         values, weights = self.listed(lo, hi, include_low=False)
         order = np.argsort(values, kind="stable")
         position = np.searchsorted(np.cumsum(weights[order]), k - c_lo, side="left")
@@ -123,7 +126,13 @@ class PairSums:
 def pair_sums(u: np.ndarray, v: np.ndarray | None = None) -> PairSums:
     """Two samples (u, v): sums u_i + v_j. One sample (v None): Walsh sums u_i + u_j, i <= j."""
     uu, cu = np.unique(u, return_counts=True)
+    cu = cu.astype(np.int64)
     if v is None:
-        return PairSums(uu, cu.astype(np.int64), uu, cu.astype(np.int64), True)
+        return PairSums(uu, cu, uu, cu, _cumulative(cu), True)
     vv, cv = np.unique(v, return_counts=True)
-    return PairSums(uu, cu.astype(np.int64), vv, cv.astype(np.int64), False)
+    cv = cv.astype(np.int64)
+    return PairSums(uu, cu, vv, cv, _cumulative(cv), False)
+
+
+def _cumulative(counts: np.ndarray) -> np.ndarray:
+    return np.concatenate([[0], np.cumsum(counts)])
