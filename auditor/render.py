@@ -8,6 +8,8 @@ from __future__ import annotations
 import json
 import math
 
+import numpy as np
+
 from auditor.results import AuditResult
 
 
@@ -133,17 +135,21 @@ def _influence(influence, out: list[str], top: int = 3) -> None:
         out.append(f"  {e.effect:<{width}} {num(e.jackknife_se):>12}"
                    f" {('line ' + str(e.most_influential_row)) if e.most_influential_row else 'n/a':>17}"
                    f" {_count(e.fragility_sign):>15} {_count(e.fragility_null):>19}")
-    ranked = []
-    for case in influence.cases:
-        scores = {k: abs(v) for k, v in case["standardized_change"].items() if v is not None}
-        if scores:
-            name = max(scores, key=scores.get)
-            ranked.append((scores[name], name, case))
-    ranked.sort(key=lambda t: -t[0])
-    for score, name, case in ranked[:top]:
-        value = "" if case["value"] is None else f", value {num(case['value'])}"
-        out.append(f"  line {case['row']} ({case['group']}{value}): removing it moves {name} by"
-                   f" {num(case['change'][name])} ({num(score, 1)} jackknife SE)")
+    names = list(influence.standardized)
+    if names:
+        scores = np.abs(np.vstack([influence.standardized[k] for k in names]))
+        scores = np.where(np.isfinite(scores), scores, -1.0)
+        best_effect = np.argmax(scores, axis=0)
+        best = scores[best_effect, np.arange(scores.shape[1])]
+        for i in np.argsort(-best, kind="stable")[:top]:
+            if best[i] < 0:
+                break
+            name = names[best_effect[i]]
+            value = ("" if influence.values is None
+                     else f", value {num(float(influence.values[i]))}")
+            out.append(f"  line {int(influence.rows[i])} ({influence.groups[i]}{value}): removing it"
+                       f" moves {name} by {num(float(influence.changes[name][i]))}"
+                       f" ({num(float(best[i]), 1)} jackknife SE)")
     out.append("")
 
 
