@@ -1,4 +1,5 @@
-"""Command line: `auditor check`, `auditor demo`. The only module that prints or writes files.
+"""Command line: `auditor check`, `auditor policy`, `auditor demo`. The only module that prints or
+writes files.
 
 Exit codes: 0 ok; 1 a problem with the data, file or options (one line on stderr); 2 usage;
 3 unexpected internal error (traceback only with --debug); 130 interrupted.
@@ -67,15 +68,18 @@ def build_parser() -> argparse.ArgumentParser:
                             " repeated (three or more); in a wide file it names the rows")
     check.add_argument("--paired", metavar="COL_A,COL_B[,...]",
                        help="wide file: the condition columns, one row per participant")
-    check.add_argument("--level", type=float, default=0.95,
-                       help="confidence level of every interval (default 0.95)")
+    check.add_argument("--level", type=float, default=None,
+                       help="confidence level of every interval (default: the policy's, 0.95)")
     check.add_argument("--reference", metavar="LABEL",
                        help="group whose SD scales Glass's delta (default: B)")
-    check.add_argument("--boot", type=int, default=2000, metavar="N",
-                       help="bootstrap resamples (default 2000)")
+    check.add_argument("--boot", type=int, default=None, metavar="N",
+                       help="bootstrap resamples (default: the policy's, 2000)")
     check.add_argument("--seed", type=int, default=None,
-                       help="seed of the bootstrap's random generator (default: a fixed seed,"
+                       help="seed of the random generator (default: the policy's fixed seed,"
                             " reported in the output)")
+    check.add_argument("--policy", metavar="PATH",
+                       help="reporting policy (TOML) that decides which index and test to report"
+                            " (default: the built-in policy; see 'auditor policy init')")
     check.add_argument("--json", metavar="PATH",
                        help="write the JSON document to PATH ('-' for standard output)")
     check.add_argument("--out", metavar="DIR", help="folder to write audit.json into")
@@ -83,6 +87,33 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                        help="show the full traceback if an internal error occurs")
     check.set_defaults(handler=_check)
+
+    pol = sub.add_parser(
+        "policy", help="write, explain or compare reporting policies",
+        description="A reporting policy (TOML) sets the screening thresholds and, for each design,"
+                    " which effect size and test are reported when the assumptions hold and when"
+                    " each check fails. Reports name the policy and its SHA-256.",
+        epilog="Examples:\n"
+               "  auditor policy init lab_policy.toml\n"
+               "  auditor policy show lab_policy.toml\n"
+               "  auditor policy diff lab_policy.toml other_lab.toml",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    psub = pol.add_subparsers(dest="policy_command", metavar="ACTION", parser_class=_Parser)
+    init = psub.add_parser("init", help="write the built-in policy, with comments, to a file",
+                           description="Write the built-in policy, commented line by line.")
+    init.add_argument("path", nargs="?", default="auditor_policy.toml",
+                      help="file to write (default auditor_policy.toml; never overwritten)")
+    init.set_defaults(handler=_policy_init)
+    show = psub.add_parser("show", help="explain a policy in sentences",
+                           description="Explain a policy (default: the built-in one) in sentences.")
+    show.add_argument("path", nargs="?", help="policy file (default: the built-in policy)")
+    show.set_defaults(handler=_policy_show)
+    diff = psub.add_parser("diff", help="list what two policies set differently",
+                           description="List every setting two policies set differently.")
+    diff.add_argument("first", help="first policy file ('default' for the built-in one)")
+    diff.add_argument("second", help="second policy file ('default' for the built-in one)")
+    diff.set_defaults(handler=_policy_diff)
+    pol.set_defaults(handler=lambda args: (pol.print_help(sys.stderr), EXIT_USAGE)[1])
 
     demo = sub.add_parser("demo", help="audit the bundled demo data",
                           description="Audit the bundled demo data set and write the results.")
@@ -158,17 +189,19 @@ def _write_text(path: Path, text: str) -> None:
 
 
 def _check(args) -> int:
-    from auditor.pipeline import DEFAULT_SEED, audit
+    from auditor.pipeline import audit
+    from auditor.policy import load_policy
     from auditor.render import terminal_summary, to_json
+
+    policy = load_policy(args.policy)
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # every condition is reported in the result itself
         result = audit(
             args.file, outcome=args.outcome, group=args.group, groups=args.groups,
             subject=args.subject, paired_columns=args.paired,
-            level=args.level, resamples=args.boot,
-            seed=DEFAULT_SEED if args.seed is None else args.seed,
-            reference=args.reference, progress=_progress_printer(),
+            level=args.level, resamples=args.boot, seed=args.seed,
+            reference=args.reference, progress=_progress_printer(), policy=policy,
         )
     document = to_json(result)
     if args.out:
@@ -182,6 +215,41 @@ def _check(args) -> int:
             _write_text(Path(args.json), document)
         if not args.quiet:
             sys.stdout.write(terminal_summary(result))
+    return EXIT_OK
+
+
+def _policy_init(args) -> int:
+    from auditor.errors import AuditError
+    from auditor.policy import default_text
+
+    path = Path(args.path)
+    if path.exists():
+        raise AuditError(f"{path}: already exists; choose another name (a policy is never"
+                         " overwritten)")
+    _write_text(path, default_text())
+    print(f"wrote the built-in policy to {path}; edit it, then use: auditor check ... --policy"
+          f" {path}")
+    return EXIT_OK
+
+
+def _policy_show(args) -> int:
+    from auditor.policy import describe, load_policy
+
+    sys.stdout.write(describe(load_policy(args.path)))
+    return EXIT_OK
+
+
+def _policy_diff(args) -> int:
+    from auditor.policy import differences, load_policy
+
+    first, second = (load_policy(None if p == "default" else p) for p in (args.first, args.second))
+    lines = differences(first, second)
+    if not lines:
+        print(f"the two policies decide alike (SHA-256 {first.sha256[:12]}... for both)")
+        return EXIT_OK
+    print(f"{len(lines)} setting(s) differ ({first.source} -> {second.source}):")
+    for line in lines:
+        print(f"  {line}")
     return EXIT_OK
 
 

@@ -43,7 +43,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from auditor.effects import EffectSpec
-from auditor.magnitude import magnitude_levels
+from auditor.magnitude import DEFAULT_BENCHMARKS, Benchmarks, magnitude_levels
 from auditor.resampling import leave_one_out_units
 from auditor.results import Effect, _Plain, plain
 
@@ -173,7 +173,8 @@ def _rule(effect: Effect, per_case: bool = False) -> str:
 
 
 def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.ndarray, ...],
-                     units: Units, level: float) -> EffectInfluence:
+                     units: Units, level: float,
+                     benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS) -> EffectInfluence:
     """Leave-one-out summary, flags and fragility of one effect (see the module docstring)."""
     rule = _rule(effect, per_case=True)
     if effect.estimate is None:
@@ -201,8 +202,9 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     with np.errstate(invalid="ignore"):
         sides = np.sign(values - null).astype(int)
     sign_flips = all_rows[finite & (sides != side)]
-    levels = magnitude_levels(spec.name, values)
-    label_changes = (all_rows[finite & (levels != magnitude_levels(spec.name, [theta])[0])]
+    levels = magnitude_levels(spec.name, values, benchmarks)
+    label_changes = (all_rows[finite & (levels != magnitude_levels(spec.name, [theta],
+                                                                   benchmarks)[0])]
                      if levels is not None else all_rows[:0])
     interval_flips = all_rows[:0]
     if effect.ci_low is not None:
@@ -316,11 +318,12 @@ def _greedy_search(spec: EffectSpec, effect: Effect, samples, units: Units, leve
 
 def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samples,
                     loo_by_name: dict[str, tuple[np.ndarray, ...]], units: Units,
-                    level: float) -> Influence:
+                    level: float,
+                    benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS) -> Influence:
     """Influence of every effect and the per-case table (row, group, value, change per effect)."""
     by_name = {e.name: e for e in effects}
     summaries = tuple(effect_influence(spec, by_name[spec.name], samples,
-                                       loo_by_name.get(spec.name, ()), units, level)
+                                       loo_by_name.get(spec.name, ()), units, level, benchmarks)
                       for spec in specs)
     se = {s.effect: s.jackknife_se for s in summaries}
     rows = np.concatenate(units.rows).astype(np.int64)

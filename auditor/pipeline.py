@@ -12,7 +12,8 @@ from collections.abc import Callable
 import numpy as np
 from scipy import stats
 
-from auditor import __version__, diagnostics, kgroups, paired
+from auditor import __version__, diagnostics, kgroups, paired, rationale
+from auditor.decide import decide
 from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
                             parse_group_list, wide_repeated)
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
@@ -21,6 +22,7 @@ from auditor.errors import DesignError, UndefinedEffectWarning
 from auditor.influence import Units, influence_table
 from auditor.load import Table, column_position, read_table
 from auditor.parametric import Estimate
+from auditor.policy import Policy, load_policy
 from auditor.rationale import CAUTION
 from auditor.resampling import bca_interval, leave_one_out_units, resample_units
 from auditor.results import AuditResult, Diagnostics, Effect, PairComparison, Settings
@@ -28,6 +30,7 @@ from auditor.results import AuditResult, Diagnostics, Effect, PairComparison, Se
 DEFAULT_SEED = 20240917
 DEFAULT_RESAMPLES = 2000
 DEFAULT_LEVEL = 0.95
+PERMUTATION_STREAM = 7  # spawn key of the random stream the permutation tests draw from
 
 Progress = Callable[[int, int], None] | None
 
@@ -50,9 +53,9 @@ def table_from_frame(frame, columns: list[str], name: str = "<data frame>") -> T
 def audit(data, *, outcome: str | None = None, group: str | None = None,
           groups: list[str] | str | None = None, subject: str | None = None,
           paired_columns: list[str] | str | None = None,
-          level: float = DEFAULT_LEVEL, resamples: int = DEFAULT_RESAMPLES,
-          seed: int = DEFAULT_SEED, reference: str | None = None,
-          progress: Progress = None) -> AuditResult:
+          level: float | None = None, resamples: int | None = None,
+          seed: int | None = None, reference: str | None = None,
+          progress: Progress = None, policy=None) -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -63,7 +66,14 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     in two-condition designs every signed effect is the first relative to the second.
     `reference` names the group whose SD scales Glass's delta (default the second). The bootstrap
     uses `numpy.random.default_rng(seed)`; the seed is recorded in the result.
+    `policy` is a `policy.Policy`, a path to a policy file, or None for the built-in default; it
+    supplies the level, resamples and seed not given here, the magnitude benchmarks, and the
+    decision (which index and test to report, with its rationale).
     """
+    policy = policy if isinstance(policy, Policy) else load_policy(policy)
+    level = policy.value("intervals", "level") if level is None else level
+    resamples = policy.value("bootstrap", "resamples") if resamples is None else resamples
+    seed = policy.value("bootstrap", "seed") if seed is None else seed
     level, resamples = _check_settings(level, resamples, seed)
     chosen = parse_group_list(groups) if isinstance(groups, str) else groups
     wide = (parse_group_list(paired_columns, "--paired") if isinstance(paired_columns, str)
@@ -80,7 +90,8 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
         columns = [outcome, group] + ([subject] if subject else [])
     table = (read_table(data, columns) if isinstance(data, (str, os.PathLike))
              else table_from_frame(data, columns))
-    settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress)
+    settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
+                    policy=policy)
     if reference is not None and (wide is not None or subject is not None):
         raise DesignError("--reference applies to two independent groups only (it names the"
                           " group whose SD scales Glass's delta)")
@@ -148,6 +159,20 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
     )
 
 
+def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12) -> AuditResult:
+    """The result with the policy's decision and its texts (`decide`, `rationale`). The
+    permutation tests draw from their own stream, derived from the seed."""
+    rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
+                                                       spawn_key=(PERMUTATION_STREAM,)))
+    decision = decide(result, samples, policy, digits, rng)
+    result = dataclasses.replace(result, decision=decision, policy=policy.stamp())
+    decision = dataclasses.replace(
+        decision, rationale=rationale.rationale(result, decision, policy),
+        reviewer_note=rationale.reviewer_note(result, decision, policy),
+        methods_sentence=rationale.methods_sentence(result, decision, policy))
+    return dataclasses.replace(result, decision=decision)
+
+
 # ------------------------------------------------------------------ designs
 
 
@@ -159,7 +184,7 @@ def _sorted_groups(design: Groups) -> Groups:
                                rows=tuple(r[o] for r, o in zip(design.rows, orders)))
 
 
-def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress):
+def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress, policy):
     ref_index = _reference_index(design.labels, reference)
     design = _sorted_groups(design)
     a, b = design.a, design.b
@@ -167,14 +192,16 @@ def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, prog
     effects, notes, loo = estimate_all(specs, (a, b), level, resamples,
                                        np.random.default_rng(seed), progress)
     units = _group_units(design)
-    return _result("two_independent", design.outcome, design.group_column,
-                   _summaries(design.labels, design.values, design.missing), design.account,
-                   _diagnose_two(design, effects), effects, notes,
-                   dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index],
-                   influence=influence_table(specs, effects, (a, b), loo, units, level))
+    result = _result("two_independent", design.outcome, design.group_column,
+                     _summaries(design.labels, design.values, design.missing), design.account,
+                     _diagnose_two(design, effects), effects, notes,
+                     dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index],
+                     influence=influence_table(specs, effects, (a, b), loo, units, level,
+                                               policy.benchmarks()))
+    return _decided(result, (a, b), policy)
 
 
-def _audit_k_groups(design: Groups, *, level, resamples, seed, progress):
+def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy):
     groups = design.values
     pairs = list(itertools.combinations(range(len(groups)), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
@@ -192,15 +219,16 @@ def _audit_k_groups(design: Groups, *, level, resamples, seed, progress):
     pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
                 for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
     diag = diagnostics.k_screen(design.labels, groups, design.rows)
-    return _result("k_independent", design.outcome, design.group_column,
-                   _summaries(design.labels, groups, design.missing), design.account, diag,
-                   effects, notes, dict(level=level, resamples=resamples, seed=seed),
-                   tests=kgroups.independent_tests(groups), pairwise=pairwise,
-                   influence=influence_table(specs, effects, groups, loo, _group_units(design),
-                                             level))
+    result = _result("k_independent", design.outcome, design.group_column,
+                     _summaries(design.labels, groups, design.missing), design.account, diag,
+                     effects, notes, dict(level=level, resamples=resamples, seed=seed),
+                     tests=kgroups.independent_tests(groups), pairwise=pairwise,
+                     influence=influence_table(specs, effects, groups, loo, _group_units(design),
+                                               level, policy.benchmarks()))
+    return _decided(result, groups, policy)
 
 
-def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress):
+def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress, policy):
     x = design.matrix
     digits = paired.difference_digits(x, design.decimals)
     labels = design.labels
@@ -215,12 +243,14 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                                          design.rows, digits, paired.sign_test(d))
         tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
                  "paired_t": _paired_t(x[:, 0], x[:, 1])}
-        return _result("paired", outcome, design.group_column,
-                       _summaries(labels, columns, design.missing),
-                       design.account, diag, effects, notes, settings,
-                       subject=design.subject_column, tests=tests,
-                       influence=influence_table(specs, effects, (x,), loo,
-                                                 _participant_units(design, d), level))
+        result = _result("paired", outcome, design.group_column,
+                         _summaries(labels, columns, design.missing),
+                         design.account, diag, effects, notes, settings,
+                         subject=design.subject_column, tests=tests,
+                         influence=influence_table(specs, effects, (x,), loo,
+                                                   _participant_units(design, d), level,
+                                                   policy.benchmarks()))
+        return _decided(result, (x,), policy, digits)
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
     specs = k_repeated_effects()
@@ -240,13 +270,15 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
     sphericity = kgroups.mauchly(x)
     cell_rows = tuple(design.cell_rows[:, k] for k in range(x.shape[1]))
     diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity)
-    return _result("k_repeated", outcome, design.group_column,
-                   _summaries(labels, columns, design.missing),
-                   design.account, diag, effects, notes, settings,
-                   subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
-                   pairwise=pairwise,
-                   influence=influence_table(specs, effects, (x,), loo,
-                                             _participant_units(design, None), level))
+    result = _result("k_repeated", outcome, design.group_column,
+                     _summaries(labels, columns, design.missing),
+                     design.account, diag, effects, notes, settings,
+                     subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
+                     pairwise=pairwise,
+                     influence=influence_table(specs, effects, (x,), loo,
+                                               _participant_units(design, None), level,
+                                               policy.benchmarks()))
+    return _decided(result, (x,), policy, digits)
 
 
 def _wilcoxon(d: np.ndarray) -> dict:

@@ -1,9 +1,248 @@
-"""Wording: the sentences a report carries. Computes nothing."""
+"""Wording: the sentences a report carries, generated from the numbers of one audit.
+
+Nothing here computes a statistic. Every number quoted is a value of the audit's JSON (the
+decision, the effects, the diagnostics, the influence), rounded to the policy's decimals by `fmt`,
+so a reader can find each one in the JSON; the tests check that they match.
+"""
 
 from __future__ import annotations
+
+from auditor.policy import Policy
 
 CAUTION = (
     "This audit supports, and does not replace, a pre-registered analysis plan and qualified"
     " statistical advice. Magnitude labels are conventions; weigh them against the effects"
     " reported in your own field's literature."
 )
+
+NAMES = {
+    "mean_difference": "the mean difference", "cohen_d": "Cohen's d", "hedges_g": "Hedges' g",
+    "glass_delta": "Glass's delta", "d_unpooled": "d with unpooled SDs", "robust_d": "robust d",
+    "prob_superiority": "the probability of superiority A", "cliff_delta": "Cliff's delta",
+    "rank_biserial": "the rank-biserial correlation", "r_from_z": "r = Z/sqrt(N)",
+    "hodges_lehmann": "the Hodges-Lehmann shift", "d_z": "d_z", "d_av": "d_av", "d_rm": "d_rm",
+    "ps_dep": "PS_dep", "matched_rank_biserial": "the matched-pairs rank-biserial correlation",
+    "epsilon_squared_h": "epsilon-squared (from H)", "eta_squared_h": "eta-squared (from H)",
+    "eta_squared": "eta-squared", "omega_squared": "omega-squared",
+    "kendall_w": "Kendall's W", "generalized_eta_squared": "generalized eta-squared",
+}
+
+INTERVAL_WORDS = {
+    "noncentral_t": "noncentral-t", "welch_t": "Welch t", "t": "t", "brunner_munzel":
+    "Brunner-Munzel", "distribution_free": "distribution-free", "bca_bootstrap": "BCa bootstrap",
+    "wilson": "Wilson",
+}
+
+CHECK_WORDS = {
+    "small_sample": "a small sample", "heavy_ties": "heavy ties", "outliers": "an influential"
+    " extreme case", "non_normal": "non-normality", "unequal_spread": "unequal spread",
+    "many_zeros": "many zero differences", "assumptions_hold": "no failed check",
+}
+
+
+def fmt(value: float | None, decimals: int) -> str:
+    """A number as the texts quote it (fixed decimals; 'n/a' when undefined)."""
+    if value is None:
+        return "n/a"
+    return f"{value:.{decimals}f}"
+
+
+def _percent(value: float, decimals: int) -> str:
+    """A proportion as a percentage, one decimal fewer than the other numbers."""
+    return f"{value * 100:.{max(decimals - 1, 0)}f}%"
+
+
+def meaning(name: str, value: float | None, labels: tuple[str, ...], outcome: str,
+            decimals: int) -> str:
+    """What the index's value says, in plain words."""
+    if value is None:
+        return "it is undefined for these data"
+    a, b = (labels + ("the second", ""))[:2]
+    v = fmt(value, decimals)
+    if name == "prob_superiority":
+        return (f"a randomly chosen participant of '{a}' has a higher {outcome} than one of"
+                f" '{b}' in {_percent(value, decimals)} of pairs (ties counted half)")
+    if name in ("cliff_delta", "rank_biserial"):
+        return (f"the share of pairs in which '{a}' is higher minus the share in which '{b}' is"
+                f" higher is {v}")
+    if name in ("cohen_d", "hedges_g"):
+        return f"the means of '{a}' and '{b}' differ by {v} pooled standard deviations"
+    if name == "glass_delta":
+        return f"the means differ by {v} standard deviations of the reference group"
+    if name == "d_unpooled":
+        return f"the means differ by {v} root-mean-square standard deviations of the two groups"
+    if name == "robust_d":
+        return (f"the 20% trimmed means differ by {v} winsorized standard deviations (scaled to"
+                " equal d for normal data)")
+    if name == "mean_difference":
+        return f"the mean of '{a}' minus the mean of '{b}' is {v} {outcome} units"
+    if name == "hodges_lehmann":
+        return f"the median of all differences '{a}' minus '{b}' is {v} {outcome} units"
+    if name == "r_from_z":
+        return f"the rank-sum z statistic divided by the square root of N is {v}"
+    if name in ("d_z",):
+        return f"the mean difference is {v} standard deviations of the differences"
+    if name == "d_av":
+        return f"the mean difference is {v} times the average of the two conditions' SDs"
+    if name == "d_rm":
+        return f"the mean difference is {v} SDs, adjusted for the correlation of the conditions"
+    if name == "ps_dep":
+        return (f"'{a}' is higher than '{b}' for {_percent(value, decimals)} of participants"
+                " (no change counted half)")
+    if name == "matched_rank_biserial":
+        return (f"the signed ranks of the differences favour '{a}' over '{b}' by {v} (share of"
+                " the rank sum from increases minus share from decreases)")
+    if name in ("eta_squared", "omega_squared", "generalized_eta_squared"):
+        return f"the conditions account for {_percent(value, decimals)} of the variance"
+    if name in ("epsilon_squared_h", "eta_squared_h"):
+        return f"group membership accounts for {_percent(value, decimals)} of the rank variance"
+    if name == "kendall_w":
+        return f"the participants' orderings of the conditions agree to W = {v} (0 none, 1 all alike)"
+    return f"its value is {v}"
+
+
+def _interval_text(interval: dict, decimals: int) -> str:
+    level = interval.get("level")
+    method = INTERVAL_WORDS.get(interval.get("method"), str(interval.get("method")))
+    if interval.get("low") is None:
+        return "no interval"
+    lvl = f"{level * 100:g}%" if level else ""
+    return (f"{lvl} {method} interval {fmt(interval['low'], decimals)} to"
+            f" {fmt(interval['high'], decimals)}")
+
+
+def _evidence_text(reason, decimals: int, most: int | None = None) -> str:
+    """The evidence that met its limit, as 'subject: statistic value (limit ...)'; p-values as
+    p-values. `most` keeps the first few items."""
+    parts = []
+    for e in reason.evidence:
+        if not e.met or e.value is None:
+            continue
+        is_p = e.statistic.endswith(" p") or e.statistic.startswith("p ")
+        value = _p(e.value) if is_p else fmt(e.value, decimals)
+        limit = ("" if e.limit is None else
+                 f" (limit {e.comparison} {fmt(e.limit, 3) if is_p else fmt(e.limit, decimals)})")
+        parts.append(f"{e.subject}: {e.statistic} {value}{limit}")
+    if most is not None and len(parts) > most:
+        parts = parts[:most] + [f"{len(parts) - most} more in the rule trace"]
+    return "; ".join(parts)
+
+
+def _p(p: float) -> str:
+    return "< 0.001" if p < 0.001 else fmt(p, 3)
+
+
+def _series(names: list[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
+
+
+def _test_text(test: dict, decimals: int) -> str:
+    if test.get("p") is None:
+        return f"{test['label']}: not computable ({test.get('reason') or 'undefined'})"
+    df = test.get("df")
+    if df is None:
+        df_text = ""
+    else:
+        df_text = "(" + ", ".join(_df(x, decimals) for x in (df if isinstance(df, (list, tuple))
+                                                          else [df])) + ")"
+    p = test["p"]
+    p_text = "p < 0.001" if p < 0.001 else f"p = {fmt(p, 3)}"
+    return (f"{test['label']}: {test['statistic_name']}{df_text} ="
+            f" {fmt(test['statistic'], decimals)}, {p_text}")
+
+
+def _df(value: float, decimals: int) -> str:
+    """Degrees of freedom: whole numbers as such, others with the report's decimals."""
+    return str(int(value)) if float(value).is_integer() else fmt(value, decimals)
+
+
+def rationale(result, decision, policy: Policy) -> str:
+    """Why this index, what the screening showed, the estimate, its interval and its meaning."""
+    dec = policy.settings["report"]["decimals"]
+    labels = tuple(g.label for g in result.groups)
+    primary = result.effect(decision.primary)
+    fired = [r for r in decision.reasons if r.fired and r.rule != "fragile"]
+    if decision.branch == "assumptions_hold":
+        why = ("Every screening check passed, so the policy's index for well-behaved data is"
+               f" reported: {NAMES[decision.primary]}.")
+    else:
+        lead = next(r for r in fired if r.rule == decision.branch)
+        why = (f"The screening found {CHECK_WORDS[decision.branch]}"
+               f" ({_evidence_text(lead, dec, most=2)}), so the policy reports"
+               f" {NAMES[decision.primary]}.")
+        others = [r for r in fired if r.rule != decision.branch]
+        if others:
+            why += " Also flagged: " + "; ".join(
+                f"{CHECK_WORDS.get(r.rule, r.rule)} ({_evidence_text(r, dec, most=2)})"
+                for r in others) + "."
+    label = decision.magnitude.get(decision.primary)
+    size = f", conventionally {label}" if label else ""
+    estimate = (f"{NAMES[decision.primary][0].upper()}{NAMES[decision.primary][1:]} ="
+                f" {fmt(primary.estimate, dec)}"
+                f" ({_interval_text(decision.interval, dec)}{size}): "
+                f"{meaning(decision.primary, primary.estimate, labels, result.outcome, dec)}.")
+    test = f"Test: {_test_text(decision.test, dec)}."
+    return " ".join([why, estimate, test])
+
+
+def reviewer_note(result, decision, policy: Policy) -> str:
+    """The answer to 'why not Cohen's d?' (or 'why not a rank-based index?'), with evidence."""
+    dec = policy.settings["report"]["decimals"]
+    rank_like = decision.descriptives == "median_iqr_range"
+    parts = []
+    fired = [r for r in decision.reasons if r.fired and r.rule != "fragile"]
+    if rank_like:
+        parts.append("Why not a mean-based index such as Cohen's d? "
+                     + ("; ".join(f"{CHECK_WORDS.get(r.rule, r.rule)}: {_evidence_text(r, dec)}"
+                                  for r in fired) or "the policy prefers ranks here") + ".")
+    else:
+        passed = [r for r in decision.reasons if not r.fired and r.rule not in ("fragile",)]
+        parts.append("Why not a rank-based index? " + (
+            "The screening found no reason to leave the mean-based index: "
+            + "; ".join(f"{r.rule.replace('_', ' ')} not flagged" for r in passed)
+            if decision.branch == "assumptions_hold"
+            else f"the policy keeps a mean-based index under {CHECK_WORDS[decision.branch]}") + ".")
+    check = getattr(result.diagnostics, "normal_theory", None)
+    if check is not None and check.implied_prob_superiority is not None \
+            and check.observed_prob_superiority is not None:
+        parts.append(
+            f"Normal-theory check: d = {fmt(check.cohen_d, dec)} implies A ="
+            f" {fmt(check.implied_prob_superiority, dec)} under normality with equal variances;"
+            f" the observed A is {fmt(check.observed_prob_superiority, dec)} (gap"
+            f" {fmt(check.gap, dec)}).")
+    if result.influence is not None:
+        frag = {e.effect: e for e in result.influence.effects}
+        for name in dict.fromkeys((decision.primary, _mean_index(result))):
+            if name in frag and frag[name].fragility_null is not None:
+                f = frag[name].fragility_null
+                if f.count == 0:
+                    text = "its interval already holds the no-effect value"
+                elif f.count is None:
+                    text = (f"no set of up to {f.step_limit} removed cases (greedy) brings the"
+                            " no-effect value into its interval")
+                else:
+                    lines = ", ".join(str(r) for r in f.rows)
+                    text = (f"removing {f.count} case(s) (lines {lines}) brings the no-effect"
+                            " value into its interval")
+                parts.append(f"Fragility of {NAMES[name]}: {text}.")
+    return " ".join(parts)
+
+
+def _mean_index(result) -> str:
+    return {"two_independent": "cohen_d", "paired": "d_z", "k_independent": "eta_squared",
+            "k_repeated": "generalized_eta_squared"}[result.design]
+
+
+def methods_sentence(result, decision, policy: Policy) -> str:
+    """One sentence for a manuscript's methods section."""
+    also = _series([NAMES[a] for a in decision.also_report]) if decision.also_report else ""
+    iv = decision.interval
+    method = INTERVAL_WORDS.get(iv.get("method"), str(iv.get("method")))
+    level = f"{iv['level'] * 100:g}%" if iv.get("level") else ""
+    s = result.settings
+    return (f"Effect sizes were screened and chosen with auditor {result.tool_version} under the"
+            f" policy '{policy.name}' (version {policy.version}, SHA-256"
+            f" {policy.sha256[:16]}): the primary index was {NAMES[decision.primary]} with its"
+            f" {level} {method} interval" + (f", reported beside {also}" if also else "")
+            + f"; the test was the {decision.test['label']}; bootstrap intervals used"
+            f" {s.bootstrap_resamples} stratified resamples (BCa) with seed {s.seed}.")

@@ -63,6 +63,7 @@ def terminal_summary(result: AuditResult) -> str:
     if len(labels) == 2:
         out.append(f"Direction: A = '{labels[0]}' relative to B = '{labels[1]}'")
     _accounting(result, out)
+    _decision(result, out)
     _group_table(result, out)
     out.append("Screening")
     if result.design == "two_independent":
@@ -114,6 +115,12 @@ def terminal_summary(result: AuditResult) -> str:
     for w in result.warnings:
         out.append(f"Note: {w}")
     out.append("")
+    if result.decision is not None:
+        out.append("For a reviewer")
+        out.extend(_wrap(result.decision.reviewer_note))
+        out.append("Methods sentence")
+        out.extend(_wrap(result.decision.methods_sentence))
+        out.append("")
     out.append(result.caution)
     return "\n".join(out) + "\n"
 
@@ -166,14 +173,39 @@ def _accounting(result: AuditResult, out: list[str]) -> None:
 
 
 def _group_table(result: AuditResult, out: list[str]) -> None:
+    """Descriptives as the decision asks: median, IQR and range beside a rank-based primary
+    index, mean and SD beside a mean-based one (the JSON always holds both)."""
     width = max([8] + [len(g.label) for g in result.groups])
-    out.append(f"{'group':<{width}} {'n':>6} {'mean':>10} {'SD':>10} {'median':>10}"
-               f" {'Q1':>10} {'Q3':>10} {'min':>10} {'max':>10}")
-    for g in result.groups:
-        out.append(f"{g.label:<{width}} {g.n:>6} {num(g.mean):>10} {num(g.sd):>10}"
-                   f" {num(g.median):>10} {num(g.q1):>10} {num(g.q3):>10} {num(g.min):>10}"
-                   f" {num(g.max):>10}")
+    ranks = result.decision is not None and result.decision.descriptives == "median_iqr_range"
+    if ranks:
+        out.append(f"{'group':<{width}} {'n':>6} {'median':>10} {'Q1':>10} {'Q3':>10}"
+                   f" {'min':>10} {'max':>10}")
+        for g in result.groups:
+            out.append(f"{g.label:<{width}} {g.n:>6} {num(g.median):>10} {num(g.q1):>10}"
+                       f" {num(g.q3):>10} {num(g.min):>10} {num(g.max):>10}")
+    else:
+        out.append(f"{'group':<{width}} {'n':>6} {'mean':>10} {'SD':>10}")
+        for g in result.groups:
+            out.append(f"{g.label:<{width}} {g.n:>6} {num(g.mean):>10} {num(g.sd):>10}")
     out.append("")
+
+
+def _decision(result: AuditResult, out: list[str]) -> None:
+    d, p = result.decision, result.policy
+    if d is None:
+        return
+    out.append(f"Decision (policy '{p['name']}' {p['version']}, SHA-256 {p['sha256'][:12]}...;"
+               f" branch: {d.branch.replace('_', ' ')})")
+    out.extend(_wrap(d.rationale))
+    for note in d.notes:
+        out.extend(_wrap("Note: " + note))
+    out.append("")
+
+
+def _wrap(text: str, width: int = 96, indent: str = "  ") -> list[str]:
+    import textwrap
+
+    return textwrap.wrap(text, width, initial_indent=indent, subsequent_indent=indent)
 
 
 def _shape(nm) -> str:

@@ -305,6 +305,8 @@ class AuditResult(_Plain):
     tests: dict = field(default_factory=dict)
     pairwise: tuple[PairComparison, ...] = ()
     influence: Any = None  # influence.Influence
+    decision: Any = None  # decide.Decision
+    policy: dict | None = None  # name, version, sha256 and source of the policy applied
 
     @property
     def direction(self) -> str:
@@ -336,6 +338,8 @@ class AuditResult(_Plain):
             "tests": plain(self.tests),
             "pairwise": [p.to_dict() for p in self.pairwise],
             "influence": None if self.influence is None else self.influence.to_dict(),
+            "decision": None if self.decision is None else self.decision.to_dict(),
+            "policy": self.policy,
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

@@ -1,0 +1,316 @@
+"""The decision: the team policy applied to the screening, as a deterministic rule trace.
+
+Each check of the design is evaluated with its evidence (the statistic, its value, the policy's
+limit); the first check in the policy's precedence that fires chooses the branch, whose primary
+index, companion indices and test are then reported. When no check fires the branch is
+`assumptions_hold`. Every check appears in the trace, fired or not, so a reviewer can follow the
+decision line by line. The test is run here (`significance.run_test`) on the same samples as the
+effects, and the primary index's fragility is compared with the policy's limit.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from auditor import significance
+from auditor.magnitude import magnitude_label
+from auditor.policy import DESIGNS, INDICES, Policy
+from auditor.results import AuditResult, Effect, _Plain, plain
+
+POLICY_DESIGN = {audit: table for table, audit in DESIGNS.items()}
+MEAN_INDEX = {"two_groups": "cohen_d", "paired": "d_z", "k_groups": "eta_squared",
+              "k_repeated": "generalized_eta_squared"}  # the index the outlier check watches
+SIGNIFICANCE_DESIGN = {"two_groups": "two_groups", "paired": "paired", "k_groups": "k_groups",
+                       "k_repeated": "k_repeated"}
+
+
+@dataclass(frozen=True)
+class Evidence(_Plain):
+    """One number a check looked at: `value` compared with `limit` by `comparison`."""
+
+    subject: str  # the group, the differences, the pooled data ...
+    statistic: str
+    value: float | None
+    comparison: str  # ">=", "<", ...
+    limit: float | None
+    met: bool
+
+
+@dataclass(frozen=True)
+class Reason(_Plain):
+    rule: str
+    fired: bool
+    evidence: tuple[Evidence, ...]
+    effect: str  # what firing (or not) does to the decision
+
+
+@dataclass(frozen=True)
+class Decision(_Plain):
+    branch: str
+    primary: str
+    also_report: tuple[str, ...]
+    interval: dict
+    test: dict
+    reasons: tuple[Reason, ...]
+    magnitude: dict
+    descriptives: str  # "median_iqr_range" or "mean_sd"
+    fragile: bool | None
+    notes: tuple[str, ...] = ()
+    rationale: str = ""
+    reviewer_note: str = ""
+    methods_sentence: str = ""
+    extra: dict = field(default_factory=dict)
+
+    def to_dict(self) -> dict:
+        out = plain(self)
+        out["also_report"] = list(self.also_report)
+        return out
+
+
+# ------------------------------------------------------------------ checks
+
+
+def _normality_evidence(norm, policy: Policy) -> tuple[list[Evidence], bool]:
+    p = policy.settings["normality"]
+    factor = p["small_n_factor"] if norm.n < p["small_n"] else 1.0
+    skew_limit, kurt_limit = p["skewness"] * factor, p["excess_kurtosis"] * factor
+    out = []
+    skew, kurt = norm.skewness, norm.excess_kurtosis
+    out.append(Evidence(norm.label, "|skewness|", None if skew is None else abs(skew), ">=",
+                        skew_limit, skew is not None and abs(skew) >= skew_limit))
+    out.append(Evidence(norm.label, "|excess kurtosis|", None if kurt is None else abs(kurt), ">=",
+                        kurt_limit, kurt is not None and abs(kurt) >= kurt_limit))
+    if norm.n < p["large_n"]:
+        sw = norm.shapiro_p
+        out.append(Evidence(norm.label, "Shapiro-Wilk p", sw, "<", p["test_p"],
+                            sw is not None and sw < p["test_p"]))
+    else:
+        out.append(Evidence(norm.label, f"Shapiro-Wilk p (ignored at n >= {p['large_n']})",
+                            norm.shapiro_p, "<", None, False))
+    return out, any(e.met for e in out)
+
+
+def _check_normality(normals, policy: Policy) -> Reason:
+    evidence, fired = [], False
+    for norm in normals:
+        ev, hit = _normality_evidence(norm, policy)
+        evidence += ev
+        fired = fired or hit
+    return Reason("non_normal", fired, tuple(evidence),
+                  "the data depart clearly from normality" if fired
+                  else "no marked departure from normality")
+
+
+def _check_spread(summaries, policy: Policy) -> Reason:
+    p = policy.settings["spread"]
+    sds = [g.sd for g in summaries]
+    if min(sds) <= 0 or not all(math.isfinite(s) for s in sds):
+        ev = Evidence("groups", "SD ratio", None, ">=", p["sd_ratio"], False)
+        return Reason("unequal_spread", False, (ev,), "SD ratio undefined (a constant group)")
+    wide = max(range(len(sds)), key=lambda i: sds[i])
+    narrow = min(range(len(sds)), key=lambda i: sds[i])
+    ratio = sds[wide] / sds[narrow]
+    n_ratio = summaries[narrow].n / summaries[wide].n
+    evidence = [Evidence("groups", f"SD ratio ({summaries[wide].label} / {summaries[narrow].label})",
+                         ratio, ">=", p["sd_ratio"], ratio >= p["sd_ratio"])]
+    smaller_wider = n_ratio >= p["unequal_n_ratio"]
+    evidence.append(Evidence(
+        "groups", f"n ratio ({summaries[narrow].label} / {summaries[wide].label}), the wider"
+        " group being the smaller", n_ratio, ">=", p["unequal_n_ratio"], smaller_wider))
+    if smaller_wider:
+        limit = p["sd_ratio_when_smaller_group_wider"]
+        evidence.append(Evidence("groups", "SD ratio when the smaller group is wider", ratio,
+                                 ">=", limit, ratio >= limit))
+    fired = evidence[0].met or (smaller_wider and evidence[-1].met)
+    return Reason("unequal_spread", fired, tuple(evidence),
+                  "the spreads differ" if fired else "spreads comparable")
+
+
+def _check_ties(ties, policy: Policy) -> Reason:
+    p = policy.settings["ties"]
+    ev = (Evidence(ties.label, "tie fraction", ties.tie_fraction, ">=", p["tie_fraction"],
+                   ties.tie_fraction >= p["tie_fraction"]),
+          Evidence(ties.label, "distinct values", float(ties.distinct_values), "<=",
+                   float(p["few_distinct_values"]),
+                   ties.distinct_values <= p["few_distinct_values"]))
+    fired = any(e.met for e in ev)
+    return Reason("heavy_ties", fired, ev, "ties are heavy or the scale is coarse" if fired
+                  else "ties are few")
+
+
+def _extreme_rows(outliers, rule: str) -> list[int]:
+    attr = {"beyond_3_iqr": "beyond_3_iqr_rows", "beyond_1_5_iqr": "beyond_1_5_iqr_rows",
+            "modified_z": "modified_z_rows"}[rule]
+    return sorted({r for o in outliers for r in getattr(o, attr)})
+
+
+def _check_outliers(result: AuditResult, outliers, design: str, policy: Policy) -> Reason:
+    p = policy.settings["outliers"]
+    index = MEAN_INDEX[design]
+    infl = result.influence
+    rows = _extreme_rows(outliers, p["rule"])
+    evidence = [Evidence("all groups", f"extreme cases ({p['rule'].replace('_', ' ')})",
+                         float(len(rows)), ">=", 1.0, bool(rows))]
+    if infl is None or index not in infl.standardized:
+        return Reason("outliers", False, tuple(evidence), "influence not available")
+    summary = next(e for e in infl.effects if e.effect == index)
+    flips = set(summary.sign_flips) | set(summary.interval_flips)
+    position = {int(r): i for i, r in enumerate(infl.rows.tolist())}
+    if design == "k_repeated":  # extreme cells belong to participants; judge the participants
+        candidates = list(position) if rows else []
+    else:
+        candidates = [r for r in rows if r in position]
+    scale = _standard_error(result.effect(index), summary)
+    fired, largest = False, None
+    for r in candidates:
+        change = float(infl.changes[index][position[r]])
+        size = abs(change) / scale if scale and math.isfinite(change) else None
+        largest = size if largest is None or (size is not None and size > largest) else largest
+        moved = size is not None and size >= p["influence_in_se"]
+        flipped = p["any_sign_or_interval_flip"] and r in flips
+        if moved or flipped:
+            fired = True
+            evidence.append(Evidence(f"line {r}", f"change of {index} in standard errors", size,
+                                     ">=", p["influence_in_se"], moved))
+            if flipped:
+                evidence.append(Evidence(f"line {r}", f"{index}: sign or interval flips when"
+                                         " removed", 1.0, ">=", 1.0, True))
+    if rows and not fired:
+        evidence.append(Evidence("all groups", f"largest change of {index} by an extreme case,"
+                                 " in standard errors", largest, ">=", p["influence_in_se"], False))
+    return Reason("outliers", fired, tuple(evidence),
+                  f"an extreme case alone moves {index}" if fired
+                  else "no extreme case drives the mean-based index")
+
+
+def _standard_error(effect: Effect, summary) -> float | None:
+    """The index's standard error read from its analytic interval (half-width over the normal
+    quantile), else its jackknife SE. The interval's SE is not inflated by the very case being
+    judged, as the jackknife SE is."""
+    from scipy import stats
+
+    if effect.ci_low is not None and effect.intervals:
+        z = float(stats.norm.ppf(0.5 + effect.intervals[0].level / 2))
+        width = (effect.ci_high - effect.ci_low) / (2 * z)
+        if width > 0:
+            return width
+    return summary.jackknife_se
+
+
+def _check_small(sizes: list[tuple[str, int]], policy: Policy) -> Reason:
+    limit = policy.settings["sample_size"]["minimum_n"]
+    ev = tuple(Evidence(label, "n", float(n), "<", float(limit), n < limit) for label, n in sizes)
+    fired = any(e.met for e in ev)
+    return Reason("small_sample", fired, ev, f"fewer than {limit} values: screening has little"
+                  " power" if fired else "every group reaches the minimum size")
+
+
+def _check_zeros(diag, policy: Policy) -> Reason:
+    limit = policy.settings["paired"]["many_zero_share"]
+    ev = (Evidence("differences", "share of zero differences", diag.zero_share, ">=", limit,
+                   diag.zero_share >= limit),)
+    return Reason("many_zeros", ev[0].met, ev, "many participants did not change" if ev[0].met
+                  else "few zero differences")
+
+
+def checks(result: AuditResult, policy: Policy) -> dict[str, Reason]:
+    """Every check of the result's design, by name."""
+    design = POLICY_DESIGN[result.design]
+    diag = result.diagnostics
+    if design == "two_groups":
+        normals = diag.normality[:2]
+        return {
+            "small_sample": _check_small([(g.label, g.n) for g in result.groups], policy),
+            "heavy_ties": _check_ties(diag.ties, policy),
+            "outliers": _check_outliers(result, diag.outliers, design, policy),
+            "non_normal": _check_normality(normals, policy),
+            "unequal_spread": _check_spread(result.groups, policy),
+        }
+    if design == "paired":
+        return {
+            "small_sample": _check_small([("pairs", result.groups[0].n)], policy),
+            "many_zeros": _check_zeros(diag, policy),
+            "heavy_ties": _check_ties(diag.differences_ties, policy),
+            "outliers": _check_outliers(result, (diag.differences_outliers,), design, policy),
+            "non_normal": _check_normality((diag.differences_normality,), policy),
+        }
+    out = {
+        "small_sample": _check_small(
+            [(g.label, g.n) for g in result.groups] if design == "k_groups"
+            else [("participants", result.groups[0].n)], policy),
+        "heavy_ties": _check_ties(diag.ties, policy),
+        "outliers": _check_outliers(result, diag.outliers, design, policy),
+        "non_normal": _check_normality(diag.normality, policy),
+    }
+    if design == "k_groups":
+        out["unequal_spread"] = _check_spread(result.groups, policy)
+    return out
+
+
+# ------------------------------------------------------------------ the decision
+
+
+def _interval(effect: Effect, method: str) -> dict:
+    iv = None
+    if method == "bootstrap":
+        iv = effect.interval("bca_bootstrap")
+    if iv is None:
+        return {"method": effect.ci_method, "low": effect.ci_low, "high": effect.ci_high,
+                "level": effect.intervals[0].level if effect.intervals else None}
+    return {"method": iv.method, "low": iv.low, "high": iv.high, "level": iv.level}
+
+
+def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
+           rng: np.random.Generator | None = None) -> Decision:
+    """Apply `policy` to a finished audit (see the module docstring)."""
+    design = POLICY_DESIGN[result.design]
+    found = checks(result, policy)
+    order = policy.precedence(design)
+    fired = [c for c in order if found[c].fired and policy.branch(design, c) is not None]
+    branch_name = fired[0] if fired else "assumptions_hold"
+    branch = policy.branch(design, branch_name)
+    effects = {e.name: e for e in result.effects}
+    notes = []
+    primary = branch.primary
+    if effects[primary].estimate is None:
+        fallback = next((a for a in branch.also if effects[a].estimate is not None
+                         and INDICES[design][a] == INDICES[design][primary]), None)
+        notes.append(f"{primary} is undefined for these data ({effects[primary].reason});"
+                     + (f" {fallback} is reported as primary instead" if fallback
+                        else " no index of the same kind is defined"))
+        primary = fallback or primary
+    also = tuple(a for a in branch.also if a != primary)
+    benchmarks = policy.benchmarks()
+    magnitude = {name: magnitude_label(name, effects[name].estimate, benchmarks)
+                 for name in (primary, *also)}
+    test = significance.run_test(SIGNIFICANCE_DESIGN[design], branch.test, samples,
+                                 digits=digits, rng=rng)
+    why = ("every check passed" if branch_name == "assumptions_hold"
+           else f"{branch_name.replace('_', ' ')} fired: {found[branch_name].effect}")
+    test_doc = plain(test)
+    test_doc["why"] = why
+    reasons = tuple(found[c] for c in order) + tuple(
+        found[c] for c in found if c not in order)
+    fragile = None
+    frag_limit = policy.settings["influence"]["fragile_at_most"]
+    if result.influence is not None:
+        summary = next((e for e in result.influence.effects if e.effect == primary), None)
+        if summary is not None:
+            count = summary.fragility_null.count
+            fragile = count is not None and 0 < count <= frag_limit
+            reasons += (Reason("fragile", fragile, (Evidence(
+                primary, "cases whose removal puts the no-effect value in the interval",
+                None if count is None else float(count), "<=", float(frag_limit), fragile),),
+                "the conclusion rests on a few cases" if fragile
+                else "no small set of cases overturns the interval"),)
+    rank_like = INDICES[design][primary] in ("ranks", "signs")
+    return Decision(
+        branch=branch_name, primary=primary, also_report=also,
+        interval=_interval(effects[primary], policy.settings["intervals"]["method"]),
+        test=test_doc, reasons=reasons, magnitude=magnitude,
+        descriptives="median_iqr_range" if rank_like else "mean_sd", fragile=fragile,
+        notes=tuple(notes),
+    )
