@@ -174,3 +174,43 @@ def test_policy_commands(run_cli, tmp_path):
     bad.write_text(_edit("sd_ratio = 2.0 ", "sd_ratio = 0.5 "), encoding="utf-8")
     code, out, err = run("policy", "show", str(bad))
     assert code == 1 and err.strip().count("\n") == 0 and "spread.sd_ratio" in err
+
+
+def test_check_with_a_policy_reports_its_fingerprint_for_every_design(run_cli, strict_json,
+                                                                     tmp_path):
+    policy_path = tmp_path / "lab.toml"
+    policy_path.write_text(_edit("minimum_n = 10", "minimum_n = 12"), encoding="utf-8")
+    lab = load_policy(policy_path)
+    demo = "demo/cycling_commute.csv"
+    designs = {
+        "two_independent": ["--outcome", "weekly_km", "--group", "scheme", "--groups", "buddy,solo"],
+        "k_independent": ["--outcome", "weekly_km", "--group", "route_type"],
+        "paired": ["--paired", "confidence_before,confidence_after", "--subject", "rider_id"],
+    }
+    for design, options in designs.items():
+        res = run_cli("check", demo, *options, "--boot", 200, "--json", "-", "--quiet",
+                      "--policy", policy_path)
+        assert res.code == 0, res.err
+        doc = strict_json(res.out)
+        assert doc["design"] == design
+        assert doc["policy"]["sha256"] == lab.sha256 and doc["policy"]["source"] == str(policy_path)
+        decision = doc["decision"]
+        assert decision["primary"] in doc["effects"]
+        assert set(decision["test"]) >= {"name", "statistic", "df", "p", "why"}
+        assert decision["rationale"] and decision["reviewer_note"] and decision["methods_sentence"]
+        assert lab.sha256[:16] in decision["methods_sentence"]
+        assert all(name in doc["effects"] for name in decision["also_report"])
+        assert set(decision["magnitude"]) == {decision["primary"], *decision["also_report"]}
+
+
+def test_check_with_a_broken_policy_stops_with_one_line(run_cli, tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(_edit('test = "welch_t"', 'test = "wilcoxon"'), encoding="utf-8")
+    res = run_cli("check", "demo/cycling_commute.csv", "--outcome", "weekly_km", "--group",
+                  "scheme", "--policy", bad)
+    assert res.code == 1 and res.out == ""
+    assert res.err.count("\n") == 1 and "Traceback" not in res.err
+    assert "two_groups.unequal_spread.test: wilcoxon: unknown key" in res.err
+    res = run_cli("check", "demo/cycling_commute.csv", "--outcome", "weekly_km", "--group",
+                  "scheme", "--policy", tmp_path / "absent.toml")
+    assert res.code == 1 and "policy file not found" in res.err
