@@ -4,11 +4,15 @@ from __future__ import annotations
 
 import re
 import tomllib
+from pathlib import Path
 
 import pytest
 
 from auditor.policy import (CHECKS, DESIGNS, INDICES, TESTS, PolicyError, default_policy,
                             default_text, describe, differences, load_policy, parse_policy)
+
+
+DEMO = Path(__file__).resolve().parents[1] / "demo" / "cycling_commute.csv"
 
 
 def _edit(old: str, new: str, text: str | None = None) -> str:
@@ -181,7 +185,7 @@ def test_check_with_a_policy_reports_its_fingerprint_for_every_design(run_cli, s
     policy_path = tmp_path / "lab.toml"
     policy_path.write_text(_edit("minimum_n = 10", "minimum_n = 12"), encoding="utf-8")
     lab = load_policy(policy_path)
-    demo = "demo/cycling_commute.csv"
+    demo = DEMO
     designs = {
         "two_independent": ["--outcome", "weekly_km", "--group", "scheme", "--groups", "buddy,solo"],
         "k_independent": ["--outcome", "weekly_km", "--group", "route_type"],
@@ -206,11 +210,11 @@ def test_check_with_a_policy_reports_its_fingerprint_for_every_design(run_cli, s
 def test_check_with_a_broken_policy_stops_with_one_line(run_cli, tmp_path):
     bad = tmp_path / "bad.toml"
     bad.write_text(_edit('test = "welch_t"', 'test = "wilcoxon"'), encoding="utf-8")
-    res = run_cli("check", "demo/cycling_commute.csv", "--outcome", "weekly_km", "--group",
+    res = run_cli("check", DEMO, "--outcome", "weekly_km", "--group",
                   "scheme", "--policy", bad)
     assert res.code == 1 and res.out == ""
     assert res.err.count("\n") == 1 and "Traceback" not in res.err
     assert "two_groups.unequal_spread.test: wilcoxon: unknown key" in res.err
-    res = run_cli("check", "demo/cycling_commute.csv", "--outcome", "weekly_km", "--group",
+    res = run_cli("check", DEMO, "--outcome", "weekly_km", "--group",
                   "scheme", "--policy", tmp_path / "absent.toml")
     assert res.code == 1 and "policy file not found" in res.err
