@@ -25,7 +25,8 @@ from auditor.parametric import Estimate
 from auditor.policy import Policy, load_policy
 from auditor.rationale import CAUTION
 from auditor.resampling import bca_interval, leave_one_out_units, resample_units
-from auditor.results import AuditResult, Diagnostics, Effect, PairComparison, Settings
+from auditor.results import (AuditResult, Diagnostics, Effect, PairComparison, Samples,
+                             Settings)
 
 DEFAULT_SEED = 20240917
 DEFAULT_RESAMPLES = 2000
@@ -160,12 +161,20 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
 
 
 def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12) -> AuditResult:
-    """The result with the policy's decision and its texts (`decide`, `rationale`). The
-    permutation tests draw from their own stream, derived from the seed."""
+    """The result with the policy's decision and its texts (`decide`, `rationale`), and the
+    analysed values kept for figures. The permutation tests draw from their own stream, derived
+    from the seed."""
     rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
                                                        spawn_key=(PERMUTATION_STREAM,)))
     decision = decide(result, samples, policy, digits, rng)
-    result = dataclasses.replace(result, decision=decision, policy=policy.stamp())
+    labels = tuple(g.label for g in result.groups)
+    if len(samples) == 1:  # participants x conditions
+        x = samples[0]
+        kept = Samples(labels, tuple(x[:, k] for k in range(x.shape[1])),
+                       paired.differences(x, digits) if x.shape[1] == 2 else None, True)
+    else:
+        kept = Samples(labels, tuple(samples))
+    result = dataclasses.replace(result, decision=decision, policy=policy.stamp(), samples=kept)
     decision = dataclasses.replace(
         decision, rationale=rationale.rationale(result, decision, policy),
         reviewer_note=rationale.reviewer_note(result, decision, policy),

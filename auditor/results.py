@@ -286,6 +286,18 @@ class Settings(_Plain):
 
 
 @dataclass(frozen=True)
+class Samples:
+    """The values the audit analysed, for figures and reports (not part of the JSON, whose
+    per-case table already lists them): per group or condition its label and values; for
+    paired data also the rounded differences (first minus second)."""
+
+    labels: tuple[str, ...]
+    values: tuple[Any, ...]  # numpy arrays, one per group or condition
+    differences: Any = None
+    paired: bool = False
+
+
+@dataclass(frozen=True)
 class AuditResult(_Plain):
     """Everything one audit found. `to_dict()` is the JSON document the command line writes."""
 
@@ -307,6 +319,7 @@ class AuditResult(_Plain):
     influence: Any = None  # influence.Influence
     decision: Any = None  # decide.Decision
     policy: dict | None = None  # name, version, sha256 and source of the policy applied
+    samples: Samples | None = field(default=None, repr=False, compare=False)
 
     @property
     def direction(self) -> str:
@@ -315,6 +328,18 @@ class AuditResult(_Plain):
             return f"{labels[0]} relative to {labels[1]}"
         return ("omnibus across " + ", ".join(labels)
                 + "; in each pair, the first named relative to the second")
+
+    def report(self, folder) -> Any:
+        """Write report.html, report.md, audit.json and the figures into `folder`, as the
+        command line's --out does (see `auditor.report.write_report`)."""
+        from auditor.report import write_report
+
+        return write_report(self, folder)
+
+    def _repr_html_(self) -> str:  # notebooks show the report's summary
+        from auditor.report import summary_html
+
+        return summary_html(self)
 
     def effect(self, name: str) -> Effect:
         for e in self.effects:
