@@ -82,7 +82,9 @@ def build_parser() -> argparse.ArgumentParser:
                             " (default: the built-in policy; see 'auditor policy init')")
     check.add_argument("--json", metavar="PATH",
                        help="write the JSON document to PATH ('-' for standard output)")
-    check.add_argument("--out", metavar="DIR", help="folder to write audit.json into")
+    check.add_argument("--out", metavar="DIR", nargs="?", const="",
+                       help="write report.html, report.md, audit.json and the figures into DIR"
+                            " (--out alone: reports/<outcome>/)")
     check.add_argument("--quiet", action="store_true", help="do not print the summary")
     check.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                        help="show the full traceback if an internal error occurs")
@@ -204,8 +206,12 @@ def _check(args) -> int:
             reference=args.reference, progress=_progress_printer(), policy=policy,
         )
     document = to_json(result)
-    if args.out:
-        _write_text(Path(args.out) / "audit.json", document)
+    if args.out is not None:
+        from auditor.report import folder_name, write_report
+
+        folder = Path(args.out) if args.out else Path("reports") / folder_name(result.outcome)
+        files = write_report(result, folder)
+        print(f"report written to {files.html}", file=sys.stderr)
     if args.json == "-":
         sys.stdout.write(document)
         if not args.quiet:

@@ -79,30 +79,68 @@ def demo_data_path() -> Path | None:
     return candidate if candidate.is_file() else None
 
 
-def run_demo(out: Path, echo: Callable[[str], None] = print) -> int:
-    """Run every demo audit and write one JSON per audit into `out`."""
+def run_demo(out: Path, echo: Callable[[str], None] = print, with_figures: bool = True) -> int:
+    """Run every demo audit; write one report folder per audit (report.html, report.md,
+    audit.json, figures) into `out`, and `out/index.html` linking them all."""
+    import os
     import warnings
 
     from auditor.errors import AuditError
     from auditor.pipeline import audit
-    from auditor.render import terminal_summary, to_json
+    from auditor.render import terminal_summary
+    from auditor.report import write_report
 
     source = demo_data_path()
-    data = str(source) if source is not None else make_demo_frame()
+    if source is not None:  # a path relative to the working folder keeps the reports portable
+        try:
+            data = os.path.relpath(source)
+        except ValueError:  # another drive
+            data = str(source)
+    else:
+        data = make_demo_frame()
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise AuditError(f"{out}: cannot create the output folder ({exc.strerror or exc})") from None
+    entries = []
     for name, options in demo_audits():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             result = audit(data, **options)
-        target = out / f"{name}.json"
-        try:
-            target.write_text(to_json(result), encoding="utf-8")
-        except OSError as exc:
-            raise AuditError(f"{target}: cannot write ({exc.strerror or exc})") from None
+        files = write_report(result, out / name, with_figures=with_figures)
+        entries.append((name, result))
         echo(f"=== {name} ===")
         echo(terminal_summary(result))
-        echo(f"(written to {target})")
+        echo(f"(report written to {files.html})")
+    index = out / "index.html"
+    try:
+        index.write_text(index_html(entries), encoding="utf-8")
+    except OSError as exc:
+        raise AuditError(f"{index}: cannot write ({exc.strerror or exc})") from None
+    echo(f"index of the demo reports: {index}")
     return 0
+
+
+def index_html(entries) -> str:
+    """A page linking every demo report, with each one's design and decision."""
+    import html
+
+    rows = []
+    for name, result in entries:
+        d = result.decision
+        link = html.escape(f"{name}/report.html", quote=True)
+        primary = html.escape(d.primary if d else "")
+        test = html.escape(d.test["label"] if d else "")
+        rows.append(f'<tr><td><a href="{link}">{html.escape(name)}</a></td>'
+                    f"<td>{html.escape(result.design.replace('_', ' '))}</td>"
+                    f"<td>{html.escape(d.branch.replace('_', ' ') if d else '')}</td>"
+                    f"<td>{primary}</td><td>{test}</td></tr>")
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            "<title>auditor demo reports</title><style>body{font-family:sans-serif;max-width:"
+            "180mm;margin:auto;padding:8px}table{border-collapse:collapse;width:100%}"
+            "td,th{border-bottom:1px solid #ccc;padding:4px 6px;text-align:left}</style></head>"
+            "<body><h1>Demo reports: an invented study of two commuter cycling schemes</h1>"
+            "<p>Each report audits one outcome of the bundled demo data set"
+            " (demo/cycling_commute.csv).</p><table><thead><tr><th>report</th><th>design</th>"
+            "<th>policy branch</th><th>primary index</th><th>test</th></tr></thead><tbody>"
+            + "".join(rows) + "</tbody></table></body></html>\n")

@@ -17,11 +17,17 @@ def test_committed_csv_is_what_the_seeded_generator_writes():
     assert path.read_text(encoding="utf-8") == buffer.getvalue()
 
 
-def test_demo_command_writes_a_json_per_outcome(tmp_path, capsys):
-    assert main(["demo", "--out", str(tmp_path)]) == 0
+def test_demo_writes_a_report_per_audit_and_an_index(tmp_path, capsys):
+    from auditor.demo import run_demo
+
+    assert run_demo(tmp_path, echo=lambda line: None, with_figures=False) == 0
     designs = {}
+    index = (tmp_path / "index.html").read_text(encoding="utf-8")
     for name, options in demo_audits():
-        doc = json.loads((tmp_path / f"{name}.json").read_text(encoding="utf-8"))
+        assert f'href="{name}/report.html"' in index
+        assert (tmp_path / name / "report.html").is_file()
+        assert (tmp_path / name / "report.md").is_file()
+        doc = json.loads((tmp_path / name / "audit.json").read_text(encoding="utf-8"))
         designs[name] = doc["design"]
         data = doc["data"]
         assert data["rows_read"] == (data["rows_used"] + len(data["excluded"])
@@ -30,9 +36,15 @@ def test_demo_command_writes_a_json_per_outcome(tmp_path, capsys):
     assert designs["weekly_km_by_route"] == "k_independent"
     assert designs["weekly_km"] == "two_independent"
     # the planted extreme case is named by its line in the file
-    repair = json.loads((tmp_path / "repair_spend.json").read_text(encoding="utf-8"))
+    repair = json.loads((tmp_path / "repair_spend" / "audit.json").read_text(encoding="utf-8"))
     frame = make_demo_frame()
     line = int(frame.index[frame["repair_spend"] == 640.0][0]) + 2
     flagged = [o for o in repair["diagnostics"]["outliers"] if o["label"] == "buddy"][0]
     assert line in flagged["beyond_3_iqr_rows"]
-    assert "buddy" in capsys.readouterr().out
+
+
+def test_demo_command_prints_the_summaries(tmp_path, capsys):
+    assert main(["demo", "--out", str(tmp_path)]) == 0
+    out = capsys.readouterr().out
+    assert "buddy" in out and "index of the demo reports" in out
+    assert (tmp_path / "weekly_km" / "figures").is_dir()
