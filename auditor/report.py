@@ -116,6 +116,13 @@ def _n(x, digits: int = 3) -> str:
     return f"{value:.{digits}f}"
 
 
+def _count_or(x) -> str:
+    """Whole numbers (counts, sizes) as such; other values with two decimals."""
+    if x is not None and float(x).is_integer() and abs(x) < 1e15:
+        return str(int(x))
+    return _n(x, 2)
+
+
 def _p(p) -> str:
     if p is None:
         return "n/a"
@@ -167,8 +174,8 @@ def _verdicts(result):
     for reason in result.decision.reasons:
         parts = []
         for ev in reason.evidence:
-            value = _p(ev.value) if ev.statistic.endswith(" p") else _n(ev.value, 2)
-            limit = "" if ev.limit is None else f" (limit {ev.comparison} {_n(ev.limit, 2)})"
+            value = _p(ev.value) if ev.statistic.endswith(" p") else _count_or(ev.value)
+            limit = "" if ev.limit is None else f" (limit {ev.comparison} {_count_or(ev.limit)})"
             mark = " [met]" if ev.met else ""
             parts.append(f"{ev.subject}: {ev.statistic} {value}{limit}{mark}")
         out.append((_RULE_WORDS.get(reason.rule, reason.rule), reason.effect, reason.fired,
