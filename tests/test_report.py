@@ -135,3 +135,27 @@ def test_an_unwritable_folder_is_one_clear_error(tmp_path):
     blocker.write_text("x")
     with pytest.raises(AuditError, match="cannot write the report"):
         write_report(_result(), blocker / "sub", with_figures=False)
+
+
+def test_out_alone_writes_reports_outcome_and_matches_result_report(run_cli, tmp_path,
+                                                                   monkeypatch):
+    data = tmp_path / "trial.csv"
+    q = stats.norm.ppf((np.arange(1, 21) - 0.5) / 20)
+    pd.DataFrame({"arm": ["x"] * 20 + ["y"] * 20, "grip strength": np.r_[q + 1, q]}).to_csv(
+        data, index=False)
+    monkeypatch.chdir(tmp_path)
+    res = run_cli("check", data, "--outcome", "grip strength", "--group", "arm", "--boot", 200,
+                  "--out", "--quiet")
+    assert res.code == 0, res.err
+    folder = tmp_path / "reports" / "grip_strength"
+    names = {p.name for p in folder.iterdir()}
+    assert names == {"report.html", "report.md", "audit.json", "figures"}
+    assert {p.name for p in (folder / "figures").iterdir()} == {
+        f"{n}.{ext}" for n in ("distributions", "qq", "ecdf", "influence", "intervals")
+        for ext in ("png", "svg")}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = audit(str(data), outcome="grip strength", group="arm", resamples=200)
+    again = result.report(tmp_path / "again")
+    for name in ("report.html", "report.md", "audit.json", "figures/qq.png", "figures/qq.svg"):
+        assert (folder / name).read_bytes() == (tmp_path / "again" / name).read_bytes(), name
