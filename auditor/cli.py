@@ -1,4 +1,4 @@
-"""Command line: `auditor check`, `auditor policy`, `auditor demo`. The only module that prints or
+"""Command line: `auditor check`, `auditor screen`, `auditor policy`, `auditor demo`. The only module that prints or
 writes files.
 
 Exit codes: 0 ok; 1 a problem with the data, file or options (one line on stderr); 2 usage;
@@ -117,6 +117,48 @@ def build_parser() -> argparse.ArgumentParser:
     diff.set_defaults(handler=_policy_diff)
     pol.set_defaults(handler=lambda args: (pol.print_help(sys.stderr), EXIT_USAGE)[1])
 
+    scr = sub.add_parser(
+        "screen", help="audit every numeric outcome of a file against one grouping",
+        description="Audit every numeric column (or the named ones) against one grouping, in the"
+                    " design the options give, and write one summary row per outcome to"
+                    " screen.csv, screen.json and screen.html (sortable). Each outcome's seed is"
+                    " derived from --seed and its name, so runs with any --jobs agree exactly."
+                    " Holm and Benjamini-Hochberg adjusted p-values of each primary test are"
+                    " given across outcomes.",
+        epilog="Examples:\n"
+               "  auditor screen study.csv --group arm --out reports/screen\n"
+               "  auditor screen study.csv --group arm --groups coached,usual --jobs 2 --sort p\n"
+               "  auditor screen visits.csv --group visit --subject id --exclude age,site",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    scr.add_argument("file", help="data file: .csv, .tsv or .xlsx")
+    scr.add_argument("--group", metavar="COLUMN", required=True,
+                     help="column holding the group or condition labels")
+    scr.add_argument("--groups", metavar="A,B[,C...]", help="the levels to compare, in order")
+    scr.add_argument("--subject", metavar="COLUMN",
+                     help="participant id column: paired or repeated conditions (long file)")
+    scr.add_argument("--outcomes", metavar="A,B,...",
+                     help="outcome columns to audit (default: every numeric column)")
+    scr.add_argument("--exclude", metavar="A,B,...", help="columns to leave out")
+    scr.add_argument("--policy", metavar="PATH", help="reporting policy (default: built-in)")
+    scr.add_argument("--jobs", type=int, default=1, metavar="N",
+                     help="worker processes (default 1; results are identical for any N)")
+    scr.add_argument("--sort", default="column", metavar="KEY",
+                     help="row order: column (file order), p, p_holm, estimate (largest first),"
+                          " fragility (most fragile first) or outcome (name)")
+    scr.add_argument("--boot", type=int, default=None, metavar="N",
+                     help="bootstrap resamples per outcome (default: the policy's)")
+    scr.add_argument("--seed", type=int, default=None, help="seed (default: the policy's)")
+    scr.add_argument("--level", type=float, default=None, help="confidence level")
+    scr.add_argument("--out", metavar="DIR", default="reports/screen",
+                     help="folder for screen.csv, screen.json, screen.html (default"
+                          " reports/screen)")
+    scr.add_argument("--reports", action="store_true",
+                     help="also write a full report per outcome, linked from screen.html")
+    scr.add_argument("--quiet", action="store_true", help="no progress and no summary")
+    scr.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                     help="show the full traceback if an internal error occurs")
+    scr.set_defaults(handler=_screen)
+
     demo = sub.add_parser("demo", help="audit the bundled demo data",
                           description="Audit the bundled demo data set and write the results.")
     demo.add_argument("--out", metavar="DIR", default="reports/demo",
@@ -221,6 +263,36 @@ def _check(args) -> int:
             _write_text(Path(args.json), document)
         if not args.quiet:
             sys.stdout.write(terminal_summary(result))
+    return EXIT_OK
+
+
+def _screen(args) -> int:
+    from auditor.design import parse_group_list
+    from auditor.screen import MULTIPLE_OUTCOMES_NOTE, run_screen
+
+    def names(text, option):
+        return None if text is None else parse_group_list(text, option)
+
+    progress = None
+    if not args.quiet and sys.stderr.isatty():
+        def progress(done: int, total: int, outcome: str) -> None:
+            width = 30
+            filled = int(width * done / max(total, 1))
+            print(f"\r[{'#' * filled}{'.' * (width - filled)}] {done}/{total} {outcome[:30]:<30}",
+                  end="" if done < total else "\n", file=sys.stderr, flush=True)
+
+    files, skipped = run_screen(
+        args.file, group=args.group, groups=names(args.groups, "--groups"), subject=args.subject,
+        outcomes=names(args.outcomes, "--outcomes"), exclude=names(args.exclude, "--exclude"),
+        policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
+        jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
+        progress=progress)
+    if not args.quiet:
+        print(f"{files.rows} outcome(s) screened; {len(skipped)} column(s) skipped")
+        for column, reason in skipped:
+            print(f"  skipped '{column}': {reason}")
+        print(f"written: {files.csv}, {files.json}, {files.html}")
+        print(MULTIPLE_OUTCOMES_NOTE)
     return EXIT_OK
 
 

@@ -89,8 +89,12 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                           " condition columns of a wide file (--paired BEFORE,AFTER)")
     else:
         columns = [outcome, group] + ([subject] if subject else [])
-    table = (read_table(data, columns) if isinstance(data, (str, os.PathLike))
-             else table_from_frame(data, columns))
+    if isinstance(data, Table):  # already read (screening reads the file once for all outcomes)
+        table = data
+    elif isinstance(data, (str, os.PathLike)):
+        table = read_table(data, columns)
+    else:
+        table = table_from_frame(data, columns)
     settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
                     policy=policy)
     if reference is not None and (wide is not None or subject is not None):

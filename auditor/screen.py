@@ -1,0 +1,487 @@
+"""Screen a whole data set: every numeric outcome audited against one grouping, one summary row
+per outcome.
+
+The file is read once. Each outcome is audited with the full pipeline (diagnostics, effects,
+intervals, influence, the policy's decision) under its own seed, derived from the user's seed and
+the outcome's name (SHA-256 of both), so adding or removing a column changes no other row, and a
+parallel run (`jobs` > 1, one process per job) gives exactly the rows of a serial one. A column
+that is mostly text is skipped with the reason; an outcome that cannot be audited (too few values,
+one group empty, ...) is a row with its reason, never a crash.
+
+Across the outcomes that were audited, the p-values of each outcome's primary test are adjusted by
+Holm's step-down method (family-wise error) and by Benjamini-Hochberg (false discovery rate).
+Rows are written to disk as they arrive (a JSON-lines file beside the outputs), and only the sort
+keys and p-values stay in memory, so memory does not grow with the number of outcomes.
+"""
+
+from __future__ import annotations
+
+import csv
+import dataclasses
+import hashlib
+import html
+import io
+import json
+import math
+import os
+import warnings
+from collections.abc import Callable, Iterator
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+
+import numpy as np
+
+from auditor.errors import AuditError, DesignError
+from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
+
+MULTIPLE_OUTCOMES_NOTE = (
+    "Screening many outcomes inflates false positives: with 20 independent outcomes and no real"
+    " difference, about one is expected below p = 0.05. Read the Holm (family-wise) or"
+    " Benjamini-Hochberg (false discovery rate) adjusted p-values, and treat the screen as a guide"
+    " to the planned analysis, not as its result."
+)
+
+SORT_KEYS = ("column", "p", "p_holm", "estimate", "fragility", "outcome")
+
+FIELDS = (
+    "outcome", "status", "reason", "design", "n", "excluded_rows", "non_normal", "unequal_spread",
+    "heavy_ties", "outliers", "small_sample", "branch", "primary", "estimate", "ci_low", "ci_high",
+    "magnitude", "cohen_d", "cohen_d_low", "cohen_d_high", "prob_superiority",
+    "prob_superiority_low", "prob_superiority_high", "normal_theory_gap", "fragility",
+    "most_influential_row", "test", "statistic", "df", "p", "p_holm", "p_bh", "seed",
+)
+
+_SIDE_BY_SIDE = {  # design -> (mean-based, rank-based) index shown beside the primary one
+    "two_independent": ("cohen_d", "prob_superiority"),
+    "paired": ("d_z", "ps_dep"),
+    "k_independent": ("eta_squared", "epsilon_squared_h"),
+    "k_repeated": ("generalized_eta_squared", "kendall_w"),
+}
+
+
+def outcome_seed(seed: int, outcome: str) -> int:
+    """The seed of one outcome: the first 8 bytes of SHA-256('seed:outcome'), below 2^63."""
+    digest = hashlib.sha256(f"{int(seed)}:{outcome}".encode("utf-8")).digest()
+    return int.from_bytes(digest[:8], "little") % (2**63)
+
+
+def _numeric_share(cells: tuple[str, ...]) -> tuple[float, str | None]:
+    """Share of the non-empty, non-missing cells that are numbers, and the first one that is not."""
+    values, reasons = parse_numbers(cells)
+    filled = [i for i, c in enumerate(cells) if c.strip() and c.strip().lower() not in MISSING_MARKERS]
+    if not filled:
+        return 0.0, None
+    bad = [i for i in filled if reasons[i] is not None]
+    example = None if not bad else cells[bad[0]].strip()
+    return 1.0 - len(bad) / len(filled), example
+
+
+def choose_outcomes(table: Table, group: str, subject: str | None, outcomes, exclude):
+    """(outcomes to audit, skipped columns with reasons). Named outcomes must exist; without
+    names, every column but the grouping, the subject and the excluded ones is a candidate, and
+    a column is skipped when fewer than half of its filled cells are numbers."""
+    taken = {group} | ({subject} if subject else set())
+    excluded = set(exclude or ())
+    named = list(outcomes) if outcomes else None
+    skipped = []
+    if named is not None:
+        candidates = [c for c in named if c not in excluded]
+    else:
+        candidates = [c for c in table.header if c not in taken and c not in excluded]
+        skipped += [(c, "excluded with --exclude") for c in table.header if c in excluded]
+    chosen = []
+    for column in candidates:
+        if column in taken:
+            skipped.append((column, "it is the grouping or subject column"))
+            continue
+        share, example = _numeric_share(table.columns[column])
+        if share < 0.5:
+            why = ("no values" if example is None and share == 0.0
+                   else f"mostly text (e.g. '{example[:30]}'), {share:.0%} numbers")
+            skipped.append((column, f"not numeric: {why}"))
+        else:
+            chosen.append(column)
+    return chosen, skipped
+
+
+# ------------------------------------------------------------------ one outcome
+
+
+def _fired(result) -> dict[str, bool]:
+    names = ("non_normal", "unequal_spread", "heavy_ties", "outliers", "small_sample")
+    fired = {r.rule for r in result.decision.reasons if r.fired}
+    return {n: n in fired for n in names}
+
+
+def summary_row(result, seed: int) -> dict:
+    """The screen's row for one audited outcome (see FIELDS)."""
+    d = result.decision
+    effects = {e.name: e for e in result.effects}
+    primary = effects[d.primary]
+    mean_name, rank_name = _SIDE_BY_SIDE[result.design]
+    row = {f: None for f in FIELDS}
+    row.update(outcome=result.outcome, status="audited", design=result.design,
+               n="; ".join(f"{g.label}: {g.n}" for g in result.groups),
+               excluded_rows=len(result.data.excluded), branch=d.branch, primary=d.primary,
+               estimate=primary.estimate, ci_low=d.interval.get("low"),
+               ci_high=d.interval.get("high"), magnitude=d.magnitude.get(d.primary),
+               test=d.test["name"], statistic=d.test.get("statistic"),
+               df=json.dumps(d.test.get("df")) if isinstance(d.test.get("df"), list)
+               else d.test.get("df"), p=d.test.get("p"), seed=seed, **_fired(result))
+    for key, name in (("cohen_d", mean_name), ("prob_superiority", rank_name)):
+        e = effects.get(name)
+        if e is not None:
+            row[key], row[f"{key}_low"], row[f"{key}_high"] = e.estimate, e.ci_low, e.ci_high
+    check = getattr(result.diagnostics, "normal_theory", None)
+    if check is not None:
+        row["normal_theory_gap"] = check.gap
+    if result.influence is not None:
+        summary = next((e for e in result.influence.effects if e.effect == d.primary), None)
+        if summary is not None:
+            row["fragility"] = summary.fragility_null.count
+            row["most_influential_row"] = summary.most_influential_row
+    return row
+
+
+def _failed_row(outcome: str, reason: str, seed: int, status: str = "not audited") -> dict:
+    row = {f: None for f in FIELDS}
+    row.update(outcome=outcome, status=status, reason=reason, seed=seed)
+    return row
+
+
+@dataclasses.dataclass(frozen=True)
+class _Job:
+    table: Table
+    group: str
+    groups: tuple[str, ...] | None
+    subject: str | None
+    policy: object
+    seed: int
+    resamples: int | None
+    level: float | None
+    report_folder: str | None
+
+
+_WORKER_JOB: _Job | None = None
+
+
+def _init_worker(job: _Job) -> None:  # runs once in each worker process
+    global _WORKER_JOB
+    _WORKER_JOB = job
+
+
+def _audit_in_worker(outcome: str) -> dict:
+    return audit_one(_WORKER_JOB, outcome)
+
+
+def audit_one(job: _Job, outcome: str) -> dict:
+    """Audit one outcome; a data problem becomes a row with its reason."""
+    from auditor.pipeline import audit
+
+    seed = outcome_seed(job.seed, outcome)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # every condition is reported in the result
+            result = audit(job.table, outcome=outcome, group=job.group,
+                           groups=list(job.groups) if job.groups else None, subject=job.subject,
+                           policy=job.policy, seed=seed, resamples=job.resamples, level=job.level)
+    except AuditError as exc:
+        return _failed_row(outcome, str(exc), seed)
+    row = summary_row(result, seed)
+    if job.report_folder:
+        from auditor.report import folder_name, write_report
+
+        folder = Path(job.report_folder) / folder_name(outcome)
+        write_report(result, folder)
+        row["report"] = f"{folder.name}/report.html"
+    return row
+
+
+# ------------------------------------------------------------------ the whole screen
+
+
+def _rows(job: _Job, outcomes: list[str], jobs: int) -> Iterator[dict]:
+    """Rows in the order of `outcomes`, serially or from `jobs` worker processes."""
+    if jobs <= 1 or len(outcomes) <= 1:
+        for outcome in outcomes:
+            yield audit_one(job, outcome)
+        return
+    import multiprocessing
+
+    context = multiprocessing.get_context("spawn")
+    with ProcessPoolExecutor(max_workers=jobs, mp_context=context, initializer=_init_worker,
+                             initargs=(job,)) as pool:
+        yield from pool.map(_audit_in_worker, outcomes, chunksize=1)
+
+
+def holm(pvalues: list[float | None]) -> list[float | None]:
+    """Holm's step-down adjusted p-values (Holm 1979); None stays None."""
+    idx = [i for i, p in enumerate(pvalues) if p is not None]
+    m = len(idx)
+    out: list[float | None] = [None] * len(pvalues)
+    running = 0.0
+    for rank, i in enumerate(sorted(idx, key=lambda i: pvalues[i])):
+        running = max(running, min(1.0, (m - rank) * pvalues[i]))
+        out[i] = running
+    return out
+
+
+def benjamini_hochberg(pvalues: list[float | None]) -> list[float | None]:
+    """Benjamini-Hochberg adjusted p-values (Benjamini & Hochberg 1995); None stays None."""
+    idx = [i for i, p in enumerate(pvalues) if p is not None]
+    m = len(idx)
+    out: list[float | None] = [None] * len(pvalues)
+    running = 1.0
+    for rank, i in reversed(list(enumerate(sorted(idx, key=lambda i: pvalues[i]), start=1))):
+        running = min(running, pvalues[i] * m / rank)
+        out[i] = min(1.0, running)
+    return out
+
+
+@dataclasses.dataclass(frozen=True)
+class ScreenFiles:
+    csv: Path
+    json: Path
+    html: Path
+    rows: int
+    skipped: tuple[tuple[str, str], ...]
+
+
+def _sort_value(row: dict, key: str, position: int):
+    if key == "column":
+        return (0, position)
+    value = row.get(key)
+    if key == "estimate" and value is not None:
+        value = -abs(value - (0.5 if row.get("primary") in ("prob_superiority", "ps_dep")
+                              else 0.0))
+    if key == "outcome":
+        return (0, str(value))
+    return (1, 0) if value is None else (0, value)
+
+
+def run_screen(data, *, group: str, groups=None, subject: str | None = None, outcomes=None,
+               exclude=None, policy=None, seed: int | None = None, resamples: int | None = None,
+               level: float | None = None, jobs: int = 1, out: Path | None = None,
+               sort: str = "column", reports: bool = False,
+               progress: Callable[[int, int, str], None] | None = None):
+    """Screen every outcome; write screen.csv, screen.json and screen.html into `out` when given.
+    Returns (rows as a list of dicts in the chosen order, skipped columns)."""
+    from auditor.pipeline import table_from_frame
+    from auditor.policy import Policy, load_policy
+
+    if sort not in SORT_KEYS:
+        raise DesignError(f"--sort {sort}: choose one of {', '.join(SORT_KEYS)}")
+    if jobs < 1:
+        raise DesignError(f"--jobs {jobs}: use 1 or more")
+    policy = policy if isinstance(policy, Policy) else load_policy(policy)
+    seed = policy.value("bootstrap", "seed") if seed is None else int(seed)
+    if isinstance(data, (str, os.PathLike)):
+        header = read_table(data, [group]).header
+        wanted = list(outcomes) if outcomes else [c for c in header if c not in (group, subject)]
+        table = read_table(data, [group] + ([subject] if subject else []) + wanted)
+    else:
+        wanted = list(outcomes) if outcomes else [c for c in data.columns
+                                                  if c not in (group, subject)]
+        table = table_from_frame(data, [group] + ([subject] if subject else []) + wanted)
+    chosen, skipped = choose_outcomes(table, group, subject, outcomes, exclude)
+    report_folder = None
+    if reports:
+        if out is None:
+            raise DesignError("--reports needs --out: the reports are written beside the screen")
+        report_folder = str(Path(out) / "reports")
+    job = _Job(table, group, tuple(groups) if groups else None, subject, policy, seed, resamples,
+               level, report_folder)
+    spool = io.StringIO() if out is None else None
+    if out is not None:
+        Path(out).mkdir(parents=True, exist_ok=True)
+        spool_path = Path(out) / "screen.rows.jsonl"
+        spool = spool_path.open("w+", encoding="utf-8")
+    keys, pvalues, offsets = [], [], []
+    try:
+        for i, row in enumerate(_rows(job, chosen, jobs)):
+            offsets.append(spool.tell())
+            spool.write(json.dumps(row, allow_nan=False, default=_plain_number) + "\n")
+            keys.append(_sort_value(row, sort if sort not in ("p_holm",) else "p", i))
+            pvalues.append(row.get("p"))
+            if progress is not None:
+                progress(i + 1, len(chosen), row["outcome"])
+        adjusted = (holm(pvalues), benjamini_hochberg(pvalues))
+        order = sorted(range(len(offsets)), key=lambda i: (keys[i], i))
+
+        def ordered_rows() -> Iterator[dict]:
+            for i in order:
+                spool.seek(offsets[i])
+                row = json.loads(spool.readline())
+                row["p_holm"], row["p_bh"] = adjusted[0][i], adjusted[1][i]
+                yield row
+
+        if out is None:
+            return list(ordered_rows()), skipped
+        files = _write_outputs(Path(out), ordered_rows, skipped, policy, seed, sort)
+        return files, skipped
+    finally:
+        spool.close()
+        if out is not None:
+            try:
+                spool_path.unlink()
+            except OSError:
+                pass
+
+
+def _plain_number(value):
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    raise TypeError(f"not JSON: {value!r}")
+
+
+def _clean(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort) -> ScreenFiles:
+    paths = out / "screen.csv", out / "screen.json", out / "screen.html"
+    count = 0
+    try:
+        with paths[0].open("w", encoding="utf-8", newline="") as f_csv, \
+                paths[1].open("w", encoding="utf-8") as f_json, \
+                paths[2].open("w", encoding="utf-8") as f_html:
+            writer = csv.writer(f_csv)
+            fields = list(FIELDS) + ["report"]
+            writer.writerow(fields)
+            f_json.write('{\n  "policy": ' + json.dumps(policy.stamp()) + ',\n  "seed": '
+                         + json.dumps(seed) + ',\n  "sorted_by": ' + json.dumps(sort)
+                         + ',\n  "note": ' + json.dumps(MULTIPLE_OUTCOMES_NOTE)
+                         + ',\n  "skipped": ' + json.dumps([{"column": c, "reason": r}
+                                                            for c, r in skipped])
+                         + ',\n  "rows": [')
+            f_html.write(_html_head(policy, seed, skipped))
+            for row in ordered_rows():
+                row = {k: _clean(v) for k, v in row.items()}
+                writer.writerow(["" if row.get(f) is None else row.get(f) for f in fields])
+                f_json.write(("\n    " if count == 0 else ",\n    ")
+                             + json.dumps(row, allow_nan=False))
+                f_html.write(_html_row(row))
+                count += 1
+            f_json.write("\n  ]\n}\n")
+            f_html.write(_HTML_TAIL)
+    except OSError as exc:
+        raise AuditError(f"{out}: cannot write the screen ({exc.strerror or exc})") from None
+    return ScreenFiles(*paths, count, tuple(skipped))
+
+
+_HTML_COLUMNS = (("outcome", "outcome"), ("status", "status"), ("n", "n"),
+                 ("excluded_rows", "excluded"), ("flags", "flags"), ("primary", "primary index"),
+                 ("estimate", "estimate"), ("interval", "interval"), ("magnitude", "label"),
+                 ("cohen_d", "mean-based"), ("prob_superiority", "rank-based"),
+                 ("normal_theory_gap", "normal-theory gap"), ("fragility", "fragility"),
+                 ("most_influential_row", "most influential line"), ("test", "test"),
+                 ("p", "p"), ("p_holm", "p (Holm)"), ("p_bh", "p (BH)"))
+
+
+def _fmt(x, digits=3) -> str:
+    if x is None:
+        return ""
+    if isinstance(x, float):
+        return f"{x:.{digits}g}" if abs(x) < 1e-3 and x != 0 else f"{x:.{digits}f}"
+    return str(x)
+
+
+def _html_head(policy, seed, skipped) -> str:
+    e = html.escape
+    skipped_html = "".join(f"<li>{e(c)}: {e(r)}</li>" for c, r in skipped)
+    head = "".join(f'<th data-col="{i}" tabindex="0">{e(t)}</th>'
+                   for i, (_, t) in enumerate(_HTML_COLUMNS))
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            "<title>Screen of all outcomes</title><style>" + _CSS + "</style></head><body>"
+            f"<h1>Screen of all outcomes</h1><p>Policy '{e(policy.name)}' {e(policy.version)}"
+            f" (SHA-256 {e(policy.sha256[:16])}), seed {e(str(seed))}. Click a column heading to"
+            " sort.</p>"
+            f"<p class=\"note\">{e(MULTIPLE_OUTCOMES_NOTE)}</p>"
+            + (f"<p>Skipped columns:</p><ul>{skipped_html}</ul>" if skipped else "")
+            + f"<table id=\"screen\"><thead><tr>{head}</tr></thead><tbody>\n")
+
+
+def _html_row(row: dict) -> str:
+    e = html.escape
+    flags = ", ".join(k.replace("_", " ") for k in ("non_normal", "unequal_spread", "heavy_ties",
+                                                    "outliers", "small_sample") if row.get(k))
+    cells = []
+    for key, _ in _HTML_COLUMNS:
+        if key == "flags":
+            text, sort = flags, flags
+        elif key == "interval":
+            text = (f"[{_fmt(row.get('ci_low'))}, {_fmt(row.get('ci_high'))}]"
+                    if row.get("ci_low") is not None else "")
+            sort = row.get("ci_low")
+        elif key == "outcome" and row.get("report"):
+            text = None
+            link = e(row["report"], quote=True)
+            cells.append(f'<td data-sort="{e(row["outcome"], quote=True)}"><a href="reports/'
+                         f'{link}">{e(row["outcome"])}</a></td>')
+            continue
+        elif key == "status" and row.get("reason"):
+            text, sort = f"{row['status']}: {row['reason']}", row["status"]
+        else:
+            text, sort = _fmt(row.get(key)), row.get(key)
+        sort_attr = "" if sort is None else e(str(sort), quote=True)
+        cells.append(f'<td data-sort="{sort_attr}">{e(text)}</td>')
+    return "<tr>" + "".join(cells) + "</tr>\n"
+
+
+_CSS = ("body{font-family:'DejaVu Sans',Arial,sans-serif;font-size:10pt;margin:12px}"
+        "table{border-collapse:collapse}th,td{border-bottom:1px solid #ccc;padding:3px 6px;"
+        "text-align:left;white-space:nowrap}th{background:#eef3f6;cursor:pointer}"
+        ".note{background:#fdf6e3;border:1px solid #b58900;padding:6px}")
+
+_HTML_TAIL = """</tbody></table>
+<script>
+(function () {
+  var table = document.getElementById("screen");
+  var body = table.tBodies[0];
+  var direction = {};
+  function key(cell) {
+    var raw = cell.getAttribute("data-sort");
+    if (raw === null || raw === "") return [1, ""];
+    var number = Number(raw);
+    return isNaN(number) ? [0, raw.toLowerCase()] : [0, number];
+  }
+  function sortBy(col) {
+    var rows = Array.prototype.slice.call(body.rows);
+    var sign = direction[col] = -(direction[col] || -1);
+    rows.sort(function (a, b) {
+      var x = key(a.cells[col]), y = key(b.cells[col]);
+      if (x[0] !== y[0]) return x[0] - y[0];
+      if (x[1] < y[1]) return -sign;
+      if (x[1] > y[1]) return sign;
+      return 0;
+    });
+    rows.forEach(function (r) { body.appendChild(r); });
+  }
+  Array.prototype.forEach.call(table.tHead.rows[0].cells, function (th) {
+    var col = Number(th.getAttribute("data-col"));
+    th.addEventListener("click", function () { sortBy(col); });
+    th.addEventListener("keydown", function (e) { if (e.key === "Enter") sortBy(col); });
+  });
+})();
+</script>
+</body></html>
+"""
+
+
+def screen(frame, *, group: str, groups=None, subject: str | None = None, outcomes=None,
+           exclude=None, policy=None, seed: int | None = None, resamples: int | None = None,
+           level: float | None = None, jobs: int = 1, sort: str = "column"):
+    """Screen every numeric column of a pandas DataFrame (or a file path) against `group`;
+    returns a pandas DataFrame with one row per outcome (columns: FIELDS). Skipped columns are
+    listed in `result.attrs["skipped"]`."""
+    import pandas as pd
+
+    rows, skipped = run_screen(frame, group=group, groups=groups, subject=subject,
+                               outcomes=outcomes, exclude=exclude, policy=policy, seed=seed,
+                               resamples=resamples, level=level, jobs=jobs, sort=sort)
+    table = pd.DataFrame(rows, columns=[f for f in FIELDS])
+    table.attrs["skipped"] = list(skipped)
+    table.attrs["note"] = MULTIPLE_OUTCOMES_NOTE
+    return table
