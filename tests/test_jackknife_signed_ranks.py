@@ -13,6 +13,8 @@ from scipy import stats
 
 from auditor import jackknife_signed_ranks as jsr
 from auditor import paired
+from refit import assert_close as _close
+from refit import refit_loop as _loop
 from auditor.resampling import leave_one_out_units
 
 STEADY = settings(derandomize=True, deadline=None, max_examples=60, database=None,
@@ -24,26 +26,6 @@ PATHS = {
 }
 
 
-def _loop(statistic, samples):
-    """Plain loop: drop one unit, recompute with the vectorised statistic on a 1-row stack."""
-    out = []
-    for j, x in enumerate(samples):
-        vals = []
-        for i in range(x.shape[0]):
-            reduced = [np.delete(s, i, axis=0) if k == j else s for k, s in enumerate(samples)]
-            with np.errstate(all="ignore"):
-                vals.append(float(statistic(*[r[None, ...] for r in reduced])[0]))
-        out.append(np.array(vals))
-    return out
-
-
-def _close(fast, slow, scale=1.0):
-    assert len(fast) == len(slow)
-    for f, s in zip(fast, slow):
-        assert f.shape == s.shape
-        both = np.isfinite(s)
-        assert np.array_equal(both, np.isfinite(f))
-        assert np.all(np.abs(f[both] - s[both]) <= 1e-12 * max(1.0, scale))
 
 
 def _check(name, x, digits):
