@@ -155,6 +155,12 @@ def bca_interval(theta_hat: float, replicates: np.ndarray, loo: tuple[np.ndarray
     replicate quantiles (linear interpolation) at Phi(z0 + (z0 + z)/(1 - a (z0 + z))) for
     z = Phi^-1((1 - level)/2) and its negative. Replicates where the statistic is undefined are
     set aside and counted. If every replicate is equal, the interval is that single value.
+
+    When the estimate itself lies outside the central `level` share of the replicates (fewer
+    than (1 - level)/2 of them on one side: typically an estimate at the edge of its range, such
+    as an omnibus effect near zero, where almost every resample is larger), the bias correction
+    is as large as the interval and pushes both limits into the extreme replicates: no interval is
+    given then, with the reason.
     """
     finite = replicates[np.isfinite(replicates)]
     undefined = int(replicates.size - finite.size)
@@ -178,6 +184,12 @@ def bca_interval(theta_hat: float, replicates: np.ndarray, loo: tuple[np.ndarray
     for zz in (z, -z):
         num = z0 + zz
         probs.append(float(special.ndtr(z0 + num / (1 - acc * num))))
+    tail = (1 - level) / 2
+    if share < tail or share > 1 - tail:
+        return BootstrapSummary(None, z0, acc, undefined,
+                                f"the bias correction is extreme ({share:.1%} of resamples below"
+                                " the estimate, outside the central"
+                                f" {level:.0%}): the BCa interval would be unreliable")
     low, high = np.percentile(finite, [100 * probs[0], 100 * probs[1]])
     note = None
     if undefined:

@@ -98,3 +98,16 @@ def test_derived_effects_equal_their_own_computation(a, b):
                                    draws(spec.by_counts), rtol=0, atol=1e-12)
         for mine, theirs in zip(spec.leave_one_out(a, b), specs[source].leave_one_out(a, b)):
             np.testing.assert_allclose(mapping(theirs), mine, rtol=0, atol=1e-12)
+
+
+def test_bca_gives_no_interval_when_the_estimate_sits_outside_the_central_replicates():
+    """An omnibus effect near zero: almost every resample is larger than the estimate, so the
+    bias correction would pin both limits to the lowest replicates."""
+    rng = np.random.default_rng(2)
+    replicates = np.abs(rng.normal(0.05, 0.02, 2000))
+    theta = float(np.quantile(replicates, 0.01))  # 1% of resamples below it
+    loo = (rng.normal(theta, 1e-3, 30),)
+    summary = resampling.bca_interval(theta, replicates, loo, 0.95)
+    assert summary.interval is None and "bias correction is extreme" in summary.reason
+    inside = float(np.quantile(replicates, 0.3))
+    assert resampling.bca_interval(inside, replicates, loo, 0.95).interval is not None
