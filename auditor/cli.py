@@ -195,7 +195,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return args.handler(args)
     except AuditError as exc:
-        print(f"auditor: error: {exc}", file=sys.stderr)
+        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")  # always one line
+        print(f"auditor: error: {message}", file=sys.stderr)
         return EXIT_DATA
     except KeyboardInterrupt:
         print("auditor: interrupted", file=sys.stderr)
@@ -247,6 +248,7 @@ def _check(args) -> int:
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
         )
+    _refuse_overwriting_the_data(args)
     document = to_json(result)
     if args.out is not None:
         from auditor.report import folder_name, write_report
@@ -264,6 +266,23 @@ def _check(args) -> int:
         if not args.quiet:
             sys.stdout.write(terminal_summary(result))
     return EXIT_OK
+
+
+def _refuse_overwriting_the_data(args) -> None:
+    """An output path that is the data file itself would destroy the data: refuse it."""
+    from auditor.errors import AuditError
+
+    data = Path(args.file)
+    targets = [Path(args.json)] if args.json not in (None, "-") else []
+    if args.out:
+        targets.append(Path(args.out))
+    for target in targets:
+        try:
+            same = target.exists() and data.exists() and target.resolve() == data.resolve()
+        except OSError:
+            same = False
+        if same:
+            raise AuditError(f"{target}: is the data file itself; choose another output path")
 
 
 def _screen(args) -> int:

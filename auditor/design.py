@@ -122,12 +122,40 @@ def _levels(labels: list[str]) -> list[str]:
     return list(dict.fromkeys(lab for lab in labels if not _is_missing(lab)))
 
 
-def _account(table: Table, used: int, excluded: list[Exclusion], not_selected) -> DataAccount:
+def _account(table: Table, used: int, excluded: list[Exclusion], not_selected,
+             notes: tuple[str, ...] = ()) -> DataAccount:
     return DataAccount(
         source=table.path, rows_read=table.n_rows, rows_used=used,
         excluded=tuple(sorted(excluded, key=lambda e: e.row)), not_selected=dict(not_selected),
         blank_lines=table.blank_lines, encoding=table.encoding, delimiter=table.delimiter,
+        notes=notes,
     )
+
+
+def label_notes(raw_labels, what: str = "group") -> tuple[str, ...]:
+    """Say how labels were read when that could surprise: labels written with surrounding blanks
+    are trimmed (so 'A ' counts as 'A'), and levels that differ only in upper/lower case are kept
+    apart (so 'A' and 'a' are two levels)."""
+    notes = []
+    padded: dict[str, set[str]] = {}
+    for raw in raw_labels:
+        lab = raw.strip()
+        if raw != lab and lab:
+            padded.setdefault(lab, set()).add(raw)
+    for lab, variants in padded.items():
+        shown = ", ".join(f"'{v}'" for v in sorted(variants)[:3])
+        notes.append(f"{what} labels {shown} were read as '{lab}' (surrounding blanks trimmed)")
+    by_case: dict[str, set[str]] = {}
+    for raw in raw_labels:
+        lab = raw.strip()
+        if lab and not _is_missing(lab):
+            by_case.setdefault(lab.lower(), set()).add(lab)
+    for variants in by_case.values():
+        if len(variants) > 1:
+            shown = " and ".join(f"'{v}'" for v in sorted(variants))
+            notes.append(f"{what} levels {shown} differ only in upper/lower case and are kept"
+                         " apart; make them equal in the file if they are one group")
+    return tuple(notes)
 
 
 # ------------------------------------------------------------------ independent groups
@@ -152,12 +180,14 @@ def independent_groups(table: Table, outcome: str, group: str,
     index = {lab: i for i, lab in enumerate(chosen)}
     members: list[list[int]] = [[] for _ in chosen]
     missing = [0] * len(chosen)
+    first_reason: dict[int, str] = {}  # per chosen group: the first exclusion, shown if it empties
     lines = table.lines
     for i, lab in enumerate(labels_all):
         if i in table.shape_problems:
             excluded.append(Exclusion(int(lines[i]), table.shape_problems[i]))
             if lab in index:
                 missing[index[lab]] += 1
+                first_reason.setdefault(index[lab], f"line {lines[i]}: {table.shape_problems[i]}")
             continue
         if _is_missing(lab):
             excluded.append(Exclusion(int(lines[i]), f"{group} is empty" if not lab
@@ -170,21 +200,24 @@ def independent_groups(table: Table, outcome: str, group: str,
         if reasons[i] is not None:
             excluded.append(Exclusion(int(lines[i]), reasons[i]))
             missing[k] += 1
+            first_reason.setdefault(k, f"line {lines[i]}: {reasons[i]}")
             continue
         members[k].append(i)
 
-    for lab, m in zip(chosen, members):
+    for k, (lab, m) in enumerate(zip(chosen, members)):
         if len(m) < MIN_PER_GROUP:
+            why = f" (first excluded row, {first_reason[k]})" if k in first_reason else ""
             raise DesignError(
                 f"{table.path}: group '{lab}' has {len(m)} valid value(s) of '{outcome}';"
-                f" at least {MIN_PER_GROUP} are needed per group"
+                f" at least {MIN_PER_GROUP} are needed per group{why}"
             )
     idx = [np.asarray(m, dtype=np.int64) for m in members]
     return Groups(
         outcome=outcome, group_column=group, labels=tuple(chosen),
         values=tuple(values[i] for i in idx), rows=tuple(lines[i] for i in idx),
         missing=tuple(missing),
-        account=_account(table, sum(len(m) for m in members), excluded, not_selected),
+        account=_account(table, sum(len(m) for m in members), excluded, not_selected,
+                         label_notes(table.columns[group])),
     )
 
 
@@ -213,8 +246,11 @@ def _choose_levels(levels: list[str], chosen: list[str] | None, path: str, colum
         raise DesignError(f"{option} names {len(chosen)} level(s); name two or more, as A,B")
     for lab in chosen:
         if lab not in levels:
+            marker = (f"; '{lab}' is read as a missing-value marker, so its rows are excluded"
+                      " (rename the level in the file)" if _is_missing(lab) else "")
             raise DesignError(
                 f"{path}: column '{column}' has no level '{lab}'; {suggest(lab, levels, 'levels')}"
+                f"{marker}"
             )
     return list(chosen)
 

@@ -53,6 +53,7 @@ ADAPTIVE_MAX_UNITS = 400
 MAX_STEPS = 200
 MIN_STEPS = 20
 FRAGILITY_WORK = 2_000_000
+CASES_LISTED_MAX = 20_000  # per-case rows in the JSON; beyond, the most influential ones
 
 
 def step_limit(units: int) -> int:
@@ -111,12 +112,28 @@ class Influence(_Plain):
 
     @property
     def cases(self) -> list[dict]:
+        return self._cases(range(self.rows.size))
+
+    def listed(self) -> np.ndarray:
+        """Positions of the cases the JSON lists: all of them up to CASES_LISTED_MAX, otherwise
+        the CASES_LISTED_MAX with the largest standardized change on any effect (in line order)."""
+        n = self.rows.size
+        if n <= CASES_LISTED_MAX or not self.standardized:
+            return np.arange(n)
+        scores = np.abs(np.vstack(list(self.standardized.values())))
+        scores = np.where(np.isfinite(scores), scores, -1.0).max(axis=0)
+        top = np.argpartition(-scores, CASES_LISTED_MAX - 1)[:CASES_LISTED_MAX]
+        return np.sort(top)
+
+    def _cases(self, positions) -> list[dict]:
         def number(x):
             x = float(x)
             return x if math.isfinite(x) else None
 
+        rows = self.rows.tolist()
         out = []
-        for i, row in enumerate(self.rows.tolist()):
+        for i in positions:
+            row = rows[i]
             out.append({
                 "row": row, "group": self.groups[i],
                 "value": None if self.values is None else number(self.values[i]),
@@ -126,8 +143,16 @@ class Influence(_Plain):
         return out
 
     def to_dict(self):
-        return {"unit": self.unit, "effects": {e.effect: plain(e) for e in self.effects},
-                "cases": self.cases}
+        listed = self.listed()
+        out = {"unit": self.unit, "effects": {e.effect: plain(e) for e in self.effects},
+               "cases": self._cases(listed.tolist())}
+        if listed.size < self.rows.size:
+            out["cases_listed"] = {
+                "listed": int(listed.size), "of": int(self.rows.size),
+                "rule": f"above {CASES_LISTED_MAX} {self.unit}s only the {CASES_LISTED_MAX} with"
+                        " the largest standardized change on any effect are listed, in line"
+                        " order; every summary above uses all of them"}
+        return out
 
 
 def _side(value: float, null: float) -> int:

@@ -147,10 +147,20 @@ def _decode(p: Path) -> tuple[str, str]:
         raw = p.read_bytes()
     except OSError as exc:
         raise InputFileError(f"{p}: cannot be read ({exc.strerror or exc})") from None
+    if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):  # spreadsheets' "Unicode text" export
+        try:
+            return raw.decode("utf-16"), "utf-16"
+        except UnicodeDecodeError:
+            raise InputFileError(f"{p}: starts like UTF-16 text but does not decode as it;"
+                                 " save the file as UTF-8") from None
     if b"\x00" in raw[:4096]:
         raise InputFileError(f"{p}: looks like a binary file, not a CSV/TSV text or .xlsx workbook")
     try:
         return raw.decode("utf-8-sig"), "utf-8"
+    except UnicodeDecodeError:
+        pass
+    try:  # Windows' Western code page: curly quotes and dashes where Latin-1 has controls
+        return raw.decode("cp1252"), "cp1252"
     except UnicodeDecodeError:
         return raw.decode("latin-1"), "latin-1"
 

@@ -169,6 +169,8 @@ def _accounting(result: AuditResult, out: list[str]) -> None:
         out.append(f"  line {ex.row}: {ex.reason}")
     if len(d.excluded) > 5:
         out.append(f"  ... {len(d.excluded) - 5} more in the JSON 'data.excluded' list")
+    for note in d.notes:
+        out.append(f"  note: {note}")
     out.append("")
 
 

@@ -231,6 +231,7 @@ def _accounting_lines(result):
              f" {len(d.excluded)} excluded" + (
                  "; not selected: " + ", ".join(f"{k}: {v}" for k, v in d.not_selected.items())
                  if d.not_selected else "") + "."]
+    lines += [f"Note: {n}" for n in d.notes]
     exclusions = [f"line {x.row}: {x.reason}" for x in d.excluded]
     return lines, exclusions
 

@@ -66,6 +66,7 @@ class DataAccount(_Plain):
     blank_lines: int = 0
     encoding: str = "utf-8"
     delimiter: str | None = None
+    notes: tuple[str, ...] = ()  # how labels were read (blanks trimmed, levels differing in case)
 
 
 # ---------------------------------------------------------------- diagnostics

@@ -999,3 +999,24 @@ def test_fragility_search_is_bounded_by_a_step_limit_that_shrinks_with_size():
         frag = info["fragility_sign"]
         assert frag["step_limit"] == step_limit(2 * n) < MAX_STEPS
         assert (frag["count"], frag["reached"]) == (None, False)
+
+
+def test_json_lists_at_most_the_cap_of_cases_keeping_the_most_influential(monkeypatch):
+    import auditor.influence as influence_module
+
+    monkeypatch.setattr(influence_module, "CASES_LISTED_MAX", 25)
+    rng = np.random.default_rng(5)
+    values = np.r_[rng.normal(0.5, 1, 40), 9.0]  # the last case of A is the most influential
+    frame = pd.DataFrame({"g": ["a"] * 41 + ["b"] * 40, "y": np.r_[values, rng.normal(0, 1, 40)]})
+    result = audit(frame, outcome="y", group="g", resamples=200)
+    doc = result.to_dict()["influence"]
+    assert len(doc["cases"]) == 25 and doc["cases_listed"] == {
+        "listed": 25, "of": 81, "rule": doc["cases_listed"]["rule"]}
+    rows = [c["row"] for c in doc["cases"]]
+    assert rows == sorted(rows) and 42 in rows  # line of the planted case (header = line 1)
+    # every listed case is at least as influential as every case left out
+    full = {c["row"]: c for c in result.influence.cases}
+    score = lambda c: max(abs(v) for v in c["standardized_change"].values() if v is not None)  # noqa: E731
+    kept = min(score(full[r]) for r in rows)
+    dropped = max(score(c) for r, c in full.items() if r not in rows)
+    assert kept >= dropped
