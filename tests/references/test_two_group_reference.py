@@ -256,16 +256,36 @@ def test_glass_delta_standard_error_against_exact_normal_theory_variance(name):
     est = parametric.glass_delta(a, b, LEVEL)
     z = stats.norm.ppf(0.5 + LEVEL / 2)
     se_used = (est.interval.high - est.interval.low) / (2 * z)
-    # Exact variance under normality with equal variances: the mean difference X ~ N(delta, h),
-    # h = 1/nA + 1/nB, independent of s_B, and nu s_B^2/sigma^2 ~ chi^2(nu), nu = nB - 1, so
-    # E[Delta^2] = (delta^2 + h) nu/(nu - 2) and E[Delta] = delta E[sigma/s_B], with
-    # E[sigma/s_B] = sqrt(nu/2) Gamma((nu-1)/2) / Gamma(nu/2) (scipy.special.gammaln).
-    nu, h, d = b.size - 1, 1 / a.size + 1 / b.size, est.value
+    # Exact variance under normality: in units of sigma_B the mean difference is
+    # X ~ N(delta, h), h = (sigma_A^2/sigma_B^2)/nA + 1/nB (no equal variances assumed; the
+    # variance ratio is plugged in from the samples), independent of s_B, and
+    # nu s_B^2/sigma_B^2 ~ chi^2(nu), nu = nB - 1, so E[Delta^2] = (delta^2 + h) nu/(nu - 2) and
+    # E[Delta] = delta E[sigma/s_B], E[sigma/s_B] = sqrt(nu/2) Gamma((nu-1)/2) / Gamma(nu/2).
+    ratio = float(np.var(a, ddof=1) / np.var(b, ddof=1))
+    nu, h, d = b.size - 1, ratio / a.size + 1 / b.size, est.value
     e_inv_s = math.sqrt(nu / 2) * math.exp(special.gammaln((nu - 1) / 2) - special.gammaln(nu / 2))
     exact_var = (d * d + h) * nu / (nu - 2) - (d * e_inv_s) ** 2
     # The project's formula is the first-order term; the exact variance is larger by a relative
     # amount of about 2/nu, so allow 3/nu.
     assert se_used / math.sqrt(exact_var) == pytest.approx(1.0, abs=3.0 / nu)
+
+
+def test_glass_delta_standard_error_by_simulation_with_unequal_spreads():
+    # Monte Carlo reference (numpy Generator, fixed seed): the SD of Glass's delta over 20000
+    # normal samples whose non-reference group has twice the reference SD, against the project's
+    # standard error at the true values; and the interval's coverage of the true delta.
+    rng = np.random.default_rng(5)
+    reps, na, nb, sd_a, sd_b, delta = 20000, 20, 40, 2.0, 1.0, 0.5
+    a = rng.normal(delta * sd_b, sd_a, size=(reps, na))
+    b = rng.normal(0.0, sd_b, size=(reps, nb))
+    values = parametric.glass_delta_values(a, b)
+    formula = math.sqrt((sd_a / sd_b) ** 2 / na + 1 / nb + delta**2 / (2 * (nb - 1)))
+    assert float(np.std(values)) == pytest.approx(formula, rel=0.05)
+    hits = 0
+    for i in range(2000):
+        iv = parametric.glass_delta(a[i], b[i], 0.95).interval
+        hits += iv.low <= delta <= iv.high
+    assert 0.93 <= hits / 2000 <= 0.97  # the equal-variance formula gives 0.762 on these data
 
 
 # ------------------------------------------------------------- d with the average variance
