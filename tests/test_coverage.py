@@ -1,4 +1,5 @@
-"""Reduced coverage study of the analytic intervals (the full study is a script for later).
+"""Reduced coverage study of the analytic intervals (the full study is
+tools/coverage_study.py, its table docs/coverage.md).
 
 Each check simulates from populations whose true effect is known, so the expected coverage is the
 interval's promise. 600 replications give a Monte Carlo SE of about 0.009 at 95%; the accepted
