@@ -124,12 +124,13 @@ def test_one_dominant_extreme_case_turns_to_a_with_robust_d_beside_it():
     assert any(e.subject == f"line {line}" and e.met for e in ev)
 
 
-def test_tiny_samples_keep_hedges_g_with_a_permutation_test():
+def test_tiny_samples_turn_to_unpooled_d_with_a_permutation_test():
     a, b = normal_values(6, 1.0), normal_values(6)
     r = run(two(a, b))
     d = r.decision
-    assert (d.branch, d.primary, d.test["name"]) == ("small_sample", "hedges_g",
+    assert (d.branch, d.primary, d.test["name"]) == ("small_sample", "d_unpooled",
                                                      "permutation_mean")
+    assert "hedges_g" in d.also_report
     # 12 values: all C(12, 6) = 924 splits are enumerated, so p is exact
     ref = stats.permutation_test((a, b), lambda x, y: np.mean(x) - np.mean(y),
                                  permutation_type="independent", n_resamples=np.inf)
