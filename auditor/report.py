@@ -16,10 +16,14 @@ Markdown its markup characters are neutralised.
 from __future__ import annotations
 
 import base64
+import dataclasses
 import html
 import re
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
+
+import numpy as np
 
 from auditor import __version__
 from auditor.errors import AuditError
@@ -437,7 +441,14 @@ def write_report(result, folder, with_figures: bool = True) -> ReportFiles:
     if with_figures:
         from auditor.figures import figures as make_figures
 
-        figs = make_figures(result)
+        try:
+            with np.errstate(all="ignore"), warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                figs = make_figures(result)
+        except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+            # values at the edge of double precision can defeat the plotting; the numbers stand
+            result = dataclasses.replace(result, warnings=result.warnings + (
+                f"the figures could not be drawn ({type(exc).__name__}: {exc})",))
     paths = []
     try:
         folder.mkdir(parents=True, exist_ok=True)

@@ -160,6 +160,7 @@ class _Job:
     resamples: int | None
     level: float | None
     report_folder: str | None
+    report_names: dict | None = None  # outcome -> its own folder name (never shared)
 
 
 _WORKER_JOB: _Job | None = None
@@ -187,14 +188,40 @@ def audit_one(job: _Job, outcome: str) -> dict:
                            policy=job.policy, seed=seed, resamples=job.resamples, level=job.level)
     except AuditError as exc:
         return _failed_row(outcome, str(exc), seed)
+    except Exception as exc:  # noqa: BLE001 - one outcome's failure must not end the screen
+        return _failed_row(outcome, f"internal error ({type(exc).__name__}: {exc}); please"
+                           " report it", seed, status="failed")
     row = summary_row(result, seed)
     if job.report_folder:
-        from auditor.report import folder_name, write_report
+        from auditor.report import write_report
 
-        folder = Path(job.report_folder) / folder_name(outcome)
-        write_report(result, folder)
-        row["report"] = f"{folder.name}/report.html"
+        folder = Path(job.report_folder) / job.report_names[outcome]
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                write_report(result, folder)
+            row["report"] = f"{folder.name}/report.html"
+        except AuditError:
+            raise  # an unwritable folder stops the screen
+        except Exception as exc:  # noqa: BLE001 - one outcome's figure must not end the screen
+            row["reason"] = f"report not written: {type(exc).__name__}: {exc}"
     return row
+
+
+def _report_names(outcomes) -> dict:
+    """A distinct folder name per outcome: names that map to the same folder get -2, -3, ..."""
+    from auditor.report import folder_name
+
+    names, taken = {}, set()
+    for outcome in outcomes:
+        base = folder_name(outcome)
+        name, k = base, 1
+        while name.lower() in taken:
+            k += 1
+            name = f"{base}-{k}"
+        taken.add(name.lower())
+        names[outcome] = name
+    return names
 
 
 # ------------------------------------------------------------------ the whole screen
@@ -256,6 +283,8 @@ def _sort_value(row: dict, key: str, position: int):
                               else 0.0))
     if key == "outcome":
         return (0, str(value))
+    if key == "fragility" and not value:  # 0: the interval already holds the null; None: no count
+        return (1, 0)
     return (1, 0) if value is None else (0, value)
 
 
@@ -273,16 +302,30 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         raise DesignError(f"--sort {sort}: choose one of {', '.join(SORT_KEYS)}")
     if jobs < 1:
         raise DesignError(f"--jobs {jobs}: use 1 or more")
+    from auditor.design import _choose_levels, _levels
+    from auditor.pipeline import _check_settings
+
     policy = policy if isinstance(policy, Policy) else load_policy(policy)
-    seed = policy.value("bootstrap", "seed") if seed is None else int(seed)
+    seed = policy.value("bootstrap", "seed") if seed is None else seed
+    _check_settings(policy.value("intervals", "level") if level is None else level,
+                    policy.value("bootstrap", "resamples") if resamples is None else resamples,
+                    seed)
+    seed = int(seed)
     if isinstance(data, (str, os.PathLike)):
         header = read_table(data, [group]).header
         wanted = list(outcomes) if outcomes else [c for c in header if c not in (group, subject)]
         table = read_table(data, [group] + ([subject] if subject else []) + wanted)
     else:
+        data = data.rename(columns=str)  # the table holds column names as text
         wanted = list(outcomes) if outcomes else [c for c in data.columns
                                                   if c not in (group, subject)]
         table = table_from_frame(data, [group] + ([subject] if subject else []) + wanted)
+    unknown = [c for c in (exclude or ()) if c not in table.header]
+    if unknown:
+        raise DesignError(f"--exclude names no column '{unknown[0]}' of {table.path}")
+    if subject is None:  # the levels are checked once, not once per outcome
+        _choose_levels(_levels([x.strip() for x in table.columns[group]]),
+                       list(groups) if groups else None, table.path, group, "--groups")
     chosen, skipped = choose_outcomes(table, group, subject, outcomes, exclude)
     report_folder = None
     if reports:
@@ -290,7 +333,7 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
             raise DesignError("--reports needs --out: the reports are written beside the screen")
         report_folder = str(Path(out) / "reports")
     job = _Job(table, group, tuple(groups) if groups else None, subject, policy, seed, resamples,
-               level, report_folder)
+               level, report_folder, _report_names(chosen) if reports else None)
     spool = io.StringIO() if out is None else None
     if out is not None:
         Path(out).mkdir(parents=True, exist_ok=True)

@@ -1,0 +1,325 @@
+"""Benchmark of `auditor screen`: many outcomes of two groups of 200, each audited with B bootstrap
+resamples, against a plain loop over the outcomes that computes the same statistics with
+scipy and pingouin.
+
+Run with `python tests/benchmarks/run_screen_benchmark.py` (N = 50, 100 and 200 outcomes), `--full`
+to add the target size of 1,000 outcomes, or `--quick` (small N, B = 200, well under a minute) to check
+that the script works. Not part of `make test`.
+
+Target: 1,000 outcomes of 2x200 with B = 2000 screened at least 20x faster than the plain loop,
+with --jobs 2; time growing linearly with the number of outcomes; peak memory bounded
+independently of the number of outcomes.
+
+Data: one CSV per N with a group column ('arm': treated, control; 200 rows each) and N outcome
+columns cycling through four shapes: normal with a shift, lognormal, integer ratings 1-7, and normal
+with one extreme value. Column j is drawn from its own seeded stream, so the first columns are the
+same at every N.
+
+Each N runs in a fresh process (started with 'spawn') that:
+1. imports the package and screens a tiny file once (lazy imports), then notes its resident memory;
+2. screens the file with `auditor.screen.run_screen(..., jobs=J, out=...)` (ours; one run per N,
+   worker processes included) and takes its peak resident memory (ru_maxrss) minus the memory of
+   step 1, and the largest peak of its worker processes;
+3. times the baseline in the same process on the same data: a plain Python loop over the first
+   few outcomes (one of each shape), best of two, scaled to N (marked 'scaled'). Per outcome:
+   Shapiro-Wilk per group, skewness and excess kurtosis, Levene's test, Cohen's d and Hedges' g
+   (pingouin.compute_effsize) with BCa intervals from scipy.stats.bootstrap, A (Mann-Whitney U /
+   n_A n_B) and Cliff's delta with BCa intervals from scipy.stats.bootstrap, the Hodges-Lehmann
+   shift (median of all pairwise differences), leave-one-out of d and A by refitting after each
+   removal, Student's t test and the Brunner-Munzel test. Its d and A are checked against the
+   screen's rows. The screen computes more per outcome than this baseline (every index of the
+   design with analytic and BCa intervals, leave-one-out influence and fragility searches for each
+   index, the policy's decision), so the baseline is the smaller job of the two.
+
+Printed: seconds per outcome at each N; the growth of time over the growth of N between sizes
+(1.0 is linear; the fixed cost of starting the workers pulls it below 1 at small N); "baseline /
+ours" at each N; and memory in MiB, beside the size of the input file held as text cells (the
+screen keeps the whole table in memory, and each worker receives a copy of it).
+"""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import gc
+import json
+import multiprocessing
+import os
+import resource
+import sys
+import tempfile
+import time
+import tracemalloc
+import warnings
+from concurrent.futures import ProcessPoolExecutor
+from pathlib import Path
+
+import numpy as np
+
+GROUP_SIZE = 200
+LABELS = ("treated", "control")
+SHAPES = ("normal", "lognormal", "rating", "extreme")
+DATA_SEED = 2026
+
+
+# ------------------------------------------------------------------ data
+
+
+def outcome_values(j: int, n: int = GROUP_SIZE) -> tuple[np.ndarray, np.ndarray]:
+    """The two groups of outcome column j (treated, control), from its own seeded stream."""
+    rng = np.random.default_rng([DATA_SEED, j])
+    shape = SHAPES[j % len(SHAPES)]
+    shift = rng.uniform(-0.4, 0.6)
+    if shape == "normal":
+        a, b = rng.normal(shift, 1.0, n), rng.normal(0.0, rng.uniform(0.8, 1.5), n)
+    elif shape == "lognormal":
+        a, b = rng.lognormal(shift, 0.8, n), rng.lognormal(0.0, 0.8, n)
+    elif shape == "rating":
+        a = np.clip(np.round(rng.normal(4.0 + shift, 1.4, n)), 1, 7)
+        b = np.clip(np.round(rng.normal(4.0, 1.4, n)), 1, 7)
+    else:  # normal with one extreme value in the treated group
+        a, b = rng.normal(shift, 1.0, n), rng.normal(0.0, 1.0, n)
+        a[rng.integers(n)] = 15.0
+    return np.round(a, 3), np.round(b, 3)
+
+
+def write_data(path: Path, outcomes: int, n: int = GROUP_SIZE) -> None:
+    columns = [outcome_values(j, n) for j in range(outcomes)]
+    with path.open("w", encoding="utf-8", newline="") as f:
+        writer = csv.writer(f)
+        writer.writerow(["arm"] + [f"y{j:04d}_{SHAPES[j % len(SHAPES)]}" for j in range(outcomes)])
+        for k, label in enumerate(LABELS):
+            for i in range(n):
+                writer.writerow([label] + [_cell(c[k][i]) for c in columns])
+
+
+def _cell(x: float) -> str:
+    return str(int(x)) if float(x).is_integer() else repr(float(x))
+
+
+# ------------------------------------------------------------------ the plain baseline
+
+
+def _cohen_d(x, y, axis=-1):
+    nx, ny = x.shape[axis], y.shape[axis]
+    pooled = ((nx - 1) * x.var(axis=axis, ddof=1) + (ny - 1) * y.var(axis=axis, ddof=1)) \
+        / (nx + ny - 2)
+    return (x.mean(axis=axis) - y.mean(axis=axis)) / np.sqrt(pooled)
+
+
+def _hedges_g(x, y, axis=-1):
+    df = x.shape[axis] + y.shape[axis] - 2
+    return _cohen_d(x, y, axis) * (1 - 3 / (4 * df - 1))
+
+
+def _prob_superiority(x, y, axis=-1):
+    from scipy import stats
+
+    return stats.mannwhitneyu(x, y, axis=axis).statistic / (x.shape[axis] * y.shape[axis])
+
+
+def _cliff_delta(x, y, axis=-1):
+    return 2 * _prob_superiority(x, y, axis) - 1
+
+
+def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int) -> dict:
+    """The statistics of one outcome, computed plainly with scipy and pingouin."""
+    import pingouin
+    from scipy import stats
+
+    out = {
+        "shapiro_p": [stats.shapiro(x).pvalue for x in (a, b)],
+        "skew_kurtosis": [(stats.skew(x, bias=False), stats.kurtosis(x, bias=False))
+                          for x in (a, b)],
+        "levene_p": stats.levene(a, b).pvalue,
+        "d": pingouin.compute_effsize(a, b, eftype="cohen"),
+        "g": pingouin.compute_effsize(a, b, eftype="hedges"),
+        "A": _prob_superiority(a, b),
+        "hodges_lehmann": float(np.median(np.subtract.outer(a, b))),
+        "t_p": stats.ttest_ind(a, b).pvalue,
+        "brunner_munzel_p": stats.brunnermunzel(a, b).pvalue,
+    }
+    out["cliff_delta"] = 2 * out["A"] - 1
+    for name, fn in (("d", _cohen_d), ("g", _hedges_g), ("A", _prob_superiority),
+                     ("cliff_delta", _cliff_delta)):
+        res = stats.bootstrap((a, b), fn, n_resamples=resamples, method="BCa",
+                              rng=np.random.default_rng(seed))
+        out[f"{name}_bca"] = tuple(res.confidence_interval)
+    removals = []
+    for k, x in enumerate((a, b)):  # refit d and A after removing each value in turn
+        for i in range(x.size):
+            kept = np.delete(x, i)
+            pair = (kept, b) if k == 0 else (a, kept)
+            removals.append((_cohen_d(*pair), _prob_superiority(*pair)))
+    out["leave_one_out"] = np.array(removals)
+    return out
+
+
+def read_groups(path: Path, columns: list[str]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    import pandas as pd
+
+    frame = pd.read_csv(path)
+    return {c: tuple(frame.loc[frame["arm"] == label, c].to_numpy(float) for label in LABELS)
+            for c in columns}
+
+
+# ------------------------------------------------------------------ one N, in a fresh process
+
+
+def _resident_bytes() -> int | None:
+    try:
+        with open("/proc/self/statm") as f:
+            return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, IndexError):
+        return None
+
+
+def _peak_bytes(who=resource.RUSAGE_SELF) -> int:
+    peak = resource.getrusage(who).ru_maxrss
+    return peak if sys.platform == "darwin" else peak * 1024  # bytes on macOS, KiB elsewhere
+
+
+def _best_of(fn, repeats: int) -> float:
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return min(times)
+
+
+def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: int,
+                 baseline_count: int, repeats: int) -> dict:
+    """Runs in a fresh spawned process: ours (timed, memory), then the baseline (timed)."""
+    from auditor.screen import run_screen
+
+    with tempfile.TemporaryDirectory() as folder:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            run_screen(warmup, group="arm", resamples=100, jobs=1, out=Path(folder) / "warm")
+        gc.collect()
+        before = _resident_bytes()
+        before = _peak_bytes() if before is None else before
+        start = time.perf_counter()
+        files, skipped = run_screen(path, group="arm", resamples=resamples, jobs=jobs,
+                                    out=Path(folder) / "screen")
+        seconds = time.perf_counter() - start
+        extra_peak = _peak_bytes() - before
+        worker_peak = _peak_bytes(resource.RUSAGE_CHILDREN)
+        rows = json.loads(files.json.read_text(encoding="utf-8"))["rows"]
+    assert files.rows == outcomes and not skipped, (files.rows, skipped)
+    assert all(r["status"] == "audited" for r in rows), [r["reason"] for r in rows if r["reason"]]
+
+    chosen = [r["outcome"] for r in rows[:baseline_count]]
+    data = read_groups(Path(path), chosen)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        results = {c: baseline_outcome(*data[c], resamples, 0) for c in chosen}
+        t_baseline = _best_of(lambda: [baseline_outcome(*data[c], resamples, 0)
+                                       for c in chosen], repeats)
+    gap = 0.0
+    for row in rows[:baseline_count]:  # the baseline computes the statistics the screen reports
+        mine = results[row["outcome"]]
+        gap = max(gap, abs(mine["d"] - row["cohen_d"]), abs(mine["A"] - row["prob_superiority"]))
+    assert gap < 1e-9, gap
+    tracemalloc.start()  # what the screen holds of the input: the file's cells as text
+    from auditor.load import read_table
+
+    header = read_table(path, ["arm"]).header
+    table = read_table(path, list(header))
+    table_bytes = tracemalloc.get_traced_memory()[0]
+    tracemalloc.stop()
+    del table
+    return {"seconds": seconds, "extra_peak": extra_peak, "worker_peak": worker_peak,
+            "table_bytes": table_bytes,
+            "baseline_per_outcome": t_baseline / len(chosen), "baseline_count": len(chosen),
+            "gap": gap, "file_bytes": os.path.getsize(path)}
+
+
+# ------------------------------------------------------------------ report
+
+
+def _counts(text: str) -> list[int]:
+    try:
+        counts = sorted({int(part) for part in text.split(",") if part.strip()})
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text}': give whole numbers, e.g. 50,100,200") from None
+    if not counts or counts[0] < 2:
+        raise argparse.ArgumentTypeError(f"'{text}': give at least 2 outcomes per size")
+    return counts
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__,
+                                     formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--quick", action="store_true",
+                        help="8 and 16 outcomes, B = 200, 2 baseline outcomes (well under a minute)")
+    parser.add_argument("--full", action="store_true",
+                        help="add the target size, 1000 outcomes (several minutes)")
+    parser.add_argument("--outcomes-list", type=_counts, default=None, metavar="N,N,...",
+                        help="numbers of outcomes to screen (default 50,100,200)")
+    parser.add_argument("--resamples", type=int, default=None,
+                        help="bootstrap resamples per outcome (default 2000; 200 with --quick)")
+    parser.add_argument("--jobs", type=int, default=2, help="worker processes of the screen")
+    parser.add_argument("--baseline-outcomes", type=int, default=None, metavar="K",
+                        help="outcomes the baseline is timed on, then scaled (default 4, one of"
+                             " each shape; 2 with --quick)")
+    args = parser.parse_args(argv)
+    counts = args.outcomes_list or ([8, 16] if args.quick else [50, 100, 200])
+    if args.full and 1000 not in counts:
+        counts = sorted(counts + [1000])
+    resamples = args.resamples or (200 if args.quick else 2000)
+    baseline_count = args.baseline_outcomes or (2 if args.quick else len(SHAPES))
+    baseline_count = max(1, min(baseline_count, counts[0]))
+    repeats = 1 if args.quick else 2
+
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"machine: {os.cpu_count()} logical CPUs, load average {load:.1f} at the start (other"
+          f" work on the machine slows --jobs most), numpy {np.__version__}; outcomes of 2x"
+          f"{GROUP_SIZE} ({', '.join(SHAPES)}, in turn), B = {resamples}, --jobs {args.jobs};"
+          " ours is one run per N, each N in a fresh process")
+    context = multiprocessing.get_context("spawn")
+    runs = {}
+    with tempfile.TemporaryDirectory() as folder:
+        warmup = Path(folder) / "warmup.csv"
+        write_data(warmup, 2, 20)
+        for n in counts:
+            path = Path(folder) / f"screen_{n}.csv"
+            write_data(path, n)
+            # a fresh process per N (not a daemon: it starts the screen's workers), so its peak
+            # memory is this run's alone
+            with ProcessPoolExecutor(max_workers=1, mp_context=context) as pool:
+                runs[n] = pool.submit(run_one_size, str(path), str(warmup), n, resamples,
+                                      args.jobs, baseline_count, repeats).result()
+            path.unlink()
+    for n in counts:
+        r = runs[n]
+        print(f"screen of {n} outcomes: {r['seconds']:.1f} s, {r['seconds'] / n:.3f} s per"
+              f" outcome")
+    for small, large in zip(counts, counts[1:]):
+        growth = (runs[large]["seconds"] / runs[small]["seconds"]) / (large / small)
+        print(f"time growth / outcome growth, {small} -> {large} outcomes: {growth:.2f}"
+              f" (linear = 1.0)")
+    first = runs[counts[0]]
+    print(f"baseline: plain loop over outcomes with scipy/pingouin, timed on the first"
+          f" {first['baseline_count']} outcomes (best of {repeats}) in the process of each N;"
+          f" agrees with the screen's d and A to {max(r['gap'] for r in runs.values()):.0e}")
+    for n in counts:
+        r = runs[n]
+        baseline = r["baseline_per_outcome"] * n
+        target = "; target >= 20x" if n == 1000 else ""
+        print(f"baseline / ours, {n} outcomes: {baseline / r['seconds']:.1f}x (baseline scaled"
+              f" from {r['baseline_count']} of {n} outcomes: {r['baseline_per_outcome']:.3f} s per"
+              f" outcome){target}")
+    for n in counts:
+        r = runs[n]
+        print(f"memory, {n} outcomes: extra peak {r['extra_peak'] / 2**20:.1f} MiB in the screening"
+              f" process (peak RSS minus RSS after imports and a warm-up screen); the input held"
+              f" as text cells takes {r['table_bytes'] / 2**20:.1f} MiB (tracemalloc; the"
+              f" file is {r['file_bytes'] / 2**20:.1f} MiB); largest worker's peak RSS"
+              f" {r['worker_peak'] / 2**20:.0f} MiB (imports and a copy of the input included)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
