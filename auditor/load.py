@@ -159,6 +159,8 @@ def _decode(p: Path) -> tuple[str, str]:
         return raw.decode("utf-8-sig"), "utf-8"
     except UnicodeDecodeError:
         pass
+    if re.search(rb"[\x80-\x9f]", raw) is None:  # Latin-1 and Windows-1252 agree on the rest
+        return raw.decode("latin-1"), "latin-1"
     try:  # Windows' Western code page: curly quotes and dashes where Latin-1 has controls
         return raw.decode("cp1252"), "cp1252"
     except UnicodeDecodeError:
