@@ -54,17 +54,24 @@ def read_table(path: str | os.PathLike, columns: list[str]) -> Table:
     else:
         text, encoding = _decode(p)
         delimiter = _detect_delimiter(text, p)
-        header, rows, lines, blank = _read_text(text, delimiter, p)
+        header, rows, lines, blank = _read_text(text, delimiter, p, columns)
+        del text
     if not header or all(not h.strip() for h in header):
         raise InputFileError(f"{p}: the file is empty or has no header line")
     header = tuple(h.strip() for h in header)
-    positions = {name: column_position(header, name, p) for name in dict.fromkeys(columns)}
-    cols = {
-        name: tuple(r[i] if i < len(r) else "" for r in rows) for name, i in positions.items()
-    }
+    names = list(dict.fromkeys(columns))
     width = len(header)
-    problems = {k: f"the line has {len(r)} fields where the header has {width}"
-                for k, r in enumerate(rows) if len(r) != width}
+    if encoding != "xlsx":  # rows hold the asked columns, then the row's field count
+        cols = {name: tuple(r[k] for r in rows) for k, name in enumerate(names)}
+        problems = {k: f"the line has {r[-1]} fields where the header has {width}"
+                    for k, r in enumerate(rows) if r[-1] != width}
+    else:
+        positions = {name: column_position(header, name, p) for name in names}
+        cols = {
+            name: tuple(r[i] if i < len(r) else "" for r in rows) for name, i in positions.items()
+        }
+        problems = {k: f"the line has {len(r)} fields where the header has {width}"
+                    for k, r in enumerate(rows) if len(r) != width}
     return Table(str(p), header, cols, np.asarray(lines, dtype=np.int64), blank, encoding,
                  delimiter, problems)
 
@@ -184,13 +191,17 @@ def _detect_delimiter(text: str, p: Path) -> str:
     return best
 
 
-def _read_text(text: str, delimiter: str, p: Path):
+def _read_text(text: str, delimiter: str, p: Path, columns: list[str] | None = None):
+    """Header, rows, their first lines and the number of blank lines. With `columns`, each row
+    keeps only the cells of those columns (in that order) followed by the row's field count, so a
+    wide file costs memory for the columns asked for only."""
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
     header: list[str] = []
     rows: list[list[str]] = []
     lines: list[int] = []
     blank = 0
     previous_end = 0
+    keep: list[int] | None = None
     try:
         for record in reader:
             start = previous_end + 1
@@ -198,12 +209,18 @@ def _read_text(text: str, delimiter: str, p: Path):
             if not header:
                 if record and any(c.strip() for c in record):
                     header = record
+                    if columns is not None:
+                        stripped = tuple(h.strip() for h in header)
+                        keep = [column_position(stripped, name, p)
+                                for name in dict.fromkeys(columns)]
                 else:
                     blank += 1
                 continue
             if not record or not any(c.strip() for c in record):
                 blank += 1
                 continue
+            if keep is not None:
+                record = [record[i] if i < len(record) else "" for i in keep] + [len(record)]
             rows.append(record)
             lines.append(start)
     except csv.Error as exc:

@@ -696,8 +696,6 @@ def test_wide_file_is_read_and_accounted_for(wide_run):
     assert [e["row"] for e in data["excluded"]] == [k + 2 for k in WIDE_BAD]
 
 
-@pytest.mark.xfail(strict=True, reason="the loader keeps every cell of all 200 columns as Python"
-                   " strings: about 16 times the file's size in extra memory")
 def test_wide_file_memory_stays_within_ten_times_its_size(wide_run):
     assert wide_run["code"] == 0, wide_run["stderr"]
     extra_mib = (wide_run["peak_kib"] - wide_run["base_kib"]) / 1024
