@@ -217,7 +217,8 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     all_rows = np.concatenate(units.rows)
     finite = np.isfinite(all_changes)
     max_change = float(np.max(np.abs(all_changes[finite]))) if finite.any() else None
-    top_row = int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))]) if finite.any() else None
+    top_row = (int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))])
+               if max_change else None)  # no case moves the estimate: none is most influential
 
     side = _side(theta, null)
     values = np.concatenate(loo)

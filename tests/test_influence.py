@@ -1020,3 +1020,13 @@ def test_json_lists_at_most_the_cap_of_cases_keeping_the_most_influential(monkey
     kept = min(score(full[r]) for r in rows)
     dropped = max(score(c) for r, c in full.items() if r not in rows)
     assert kept >= dropped
+
+
+def test_no_case_is_most_influential_when_no_removal_changes_the_estimate():
+    # every value of A above every value of B: A stays 1 whichever case is removed
+    frame = pd.DataFrame({"g": ["a"] * 6 + ["b"] * 6,
+                          "y": [10.0, 11, 12, 13, 14, 15, 1, 2, 3, 4, 5, 6]})
+    result = audit(frame, outcome="y", group="g", resamples=200)
+    info = result.to_dict()["influence"]["effects"]["prob_superiority"]
+    assert info["max_abs_change"] == 0.0 and info["most_influential_row"] is None
+    assert result.to_dict()["influence"]["effects"]["cohen_d"]["most_influential_row"] is not None
