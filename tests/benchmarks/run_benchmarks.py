@@ -48,18 +48,10 @@ from scipy import stats
 from auditor import parametric, ranks
 from auditor.effects import two_group_effects
 from auditor.pipeline import estimate_all, leave_one_out_all
+from timing import best_of, whole_numbers
 
 SECTIONS = ("loo", "sort", "bca", "hl", "whole")
 PINGOUIN_FULL_MAX = 5000  # per group; above it a full BCa run would build n x n jackknife arrays
-
-
-def best_of(fn, repeats: int = 3) -> float:
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return min(times)
 
 
 def groups(n: int, rng) -> tuple[np.ndarray, np.ndarray]:
@@ -277,13 +269,7 @@ def whole_audit(sizes: list[int], resamples: int = 2000) -> None:
 
 
 def _sizes(text: str) -> list[int]:
-    try:
-        sizes = sorted({int(part) for part in text.split(",") if part.strip()})
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}': give whole numbers, e.g. 2000,20000") from None
-    if not sizes or sizes[0] < 20:
-        raise argparse.ArgumentTypeError(f"'{text}': give group sizes of at least 20")
-    return sizes
+    return whole_numbers(text, 20, "2000,20000", "group sizes")
 
 
 def _sections(text: str) -> set[str]:

@@ -55,6 +55,7 @@ from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import numpy as np
+from timing import best_of, whole_numbers
 
 GROUP_SIZE = 200
 LABELS = ("treated", "control")
@@ -179,15 +180,6 @@ def _peak_bytes(who=resource.RUSAGE_SELF) -> int:
     return peak if sys.platform == "darwin" else peak * 1024  # bytes on macOS, KiB elsewhere
 
 
-def _best_of(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - start)
-    return min(times)
-
-
 def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: int,
                  baseline_count: int, repeats: int) -> dict:
     """Runs in a fresh spawned process: ours (timed, memory), then the baseline (timed)."""
@@ -215,7 +207,7 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         results = {c: baseline_outcome(*data[c], resamples, 0) for c in chosen}
-        t_baseline = _best_of(lambda: [baseline_outcome(*data[c], resamples, 0)
+        t_baseline = best_of(lambda: [baseline_outcome(*data[c], resamples, 0)
                                        for c in chosen], repeats)
     gap = 0.0
     for row in rows[:baseline_count]:  # the baseline computes the statistics the screen reports
@@ -240,13 +232,7 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
 
 
 def _counts(text: str) -> list[int]:
-    try:
-        counts = sorted({int(part) for part in text.split(",") if part.strip()})
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"'{text}': give whole numbers, e.g. 50,100,200") from None
-    if not counts or counts[0] < 2:
-        raise argparse.ArgumentTypeError(f"'{text}': give at least 2 outcomes per size")
-    return counts
+    return whole_numbers(text, 2, "50,100,200", "outcome counts")
 
 
 def main(argv=None) -> int:
