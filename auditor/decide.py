@@ -14,6 +14,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import stats
 
 from auditor import significance
 from auditor.magnitude import magnitude_label
@@ -23,8 +24,6 @@ from auditor.results import AuditResult, Effect, _Plain, plain
 POLICY_DESIGN = {audit: table for table, audit in DESIGNS.items()}
 MEAN_INDEX = {"two_groups": "cohen_d", "paired": "d_z", "k_groups": "eta_squared",
               "k_repeated": "generalized_eta_squared"}  # the index the outlier check watches
-SIGNIFICANCE_DESIGN = {"two_groups": "two_groups", "paired": "paired", "k_groups": "k_groups",
-                       "k_repeated": "k_repeated"}
 
 
 @dataclass(frozen=True)
@@ -190,8 +189,6 @@ def _standard_error(effect: Effect, summary) -> float | None:
     """The index's standard error read from its analytic interval (half-width over the normal
     quantile), else its jackknife SE. The interval's SE is not inflated by the very case being
     judged, as the jackknife SE is."""
-    from scipy import stats
-
     if effect.ci_low is not None and effect.intervals:
         z = float(stats.norm.ppf(0.5 + effect.intervals[0].level / 2))
         width = (effect.ci_high - effect.ci_low) / (2 * z)
@@ -286,7 +283,7 @@ def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
     benchmarks = policy.benchmarks()
     magnitude = {name: magnitude_label(name, effects[name].estimate, benchmarks)
                  for name in (primary, *also)}
-    test = significance.run_test(SIGNIFICANCE_DESIGN[design], branch.test, samples,
+    test = significance.run_test(design, branch.test, samples,
                                  digits=digits, rng=rng)
     why = ("every check passed" if branch_name == "assumptions_hold"
            else f"{branch_name.replace('_', ' ')} fired: {found[branch_name].effect}")
