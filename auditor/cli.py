@@ -239,6 +239,7 @@ def _check(args) -> int:
     from auditor.render import terminal_summary, to_json
 
     policy = load_policy(args.policy)
+    _refuse_overwriting_the_data(args)  # before the audit, not after minutes of work
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # every condition is reported in the result itself
@@ -248,7 +249,6 @@ def _check(args) -> int:
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
         )
-    _refuse_overwriting_the_data(args)
     document = to_json(result)
     if args.out is not None:
         from auditor.report import folder_name, write_report
