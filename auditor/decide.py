@@ -250,7 +250,9 @@ def checks(result: AuditResult, policy: Policy) -> dict[str, Reason]:
 # ------------------------------------------------------------------ the decision
 
 
-def _interval(effect: Effect, method: str) -> dict:
+def quoted_interval(effect: Effect, method: str) -> dict:
+    """The interval the policy quotes for `effect`: its BCa bootstrap interval when `method` is
+    "bootstrap" and one exists, otherwise the effect's own (analytic first)."""
     iv = None
     if method == "bootstrap":
         iv = effect.interval("bca_bootstrap")
@@ -260,9 +262,21 @@ def _interval(effect: Effect, method: str) -> dict:
     return {"method": iv.method, "low": iv.low, "high": iv.high, "level": iv.level}
 
 
-def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
-           rng: np.random.Generator | None = None) -> Decision:
-    """Apply `policy` to a finished audit (see the module docstring)."""
+@dataclass(frozen=True)
+class Choice:
+    """The branch the checks select and the index it reports as primary."""
+
+    branch: str
+    primary: str
+    found: dict
+    notes: tuple[str, ...]
+
+
+def choose(result: AuditResult, policy: Policy) -> Choice:
+    """Run the checks and pick the branch (the first fired check in the policy's precedence, else
+    `assumptions_hold`) and its primary index, or the first companion of the same kind when the
+    primary is undefined for these data. Needs the influence of the outlier check's index
+    (`MEAN_INDEX`), not the fragility of any index."""
     design = POLICY_DESIGN[result.design]
     found = checks(result, policy)
     order = policy.precedence(design)
@@ -279,6 +293,19 @@ def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
                      + (f" {fallback} is reported as primary instead" if fallback
                         else " no index of the same kind is defined"))
         primary = fallback or primary
+    return Choice(branch_name, primary, found, tuple(notes))
+
+
+def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
+           rng: np.random.Generator | None = None) -> Decision:
+    """Apply `policy` to a finished audit (see the module docstring)."""
+    design = POLICY_DESIGN[result.design]
+    choice = choose(result, policy)
+    found, branch_name, primary = choice.found, choice.branch, choice.primary
+    order = policy.precedence(design)
+    branch = policy.branch(design, branch_name)
+    effects = {e.name: e for e in result.effects}
+    notes = list(choice.notes)
     also = tuple(a for a in branch.also if a != primary)
     benchmarks = policy.benchmarks()
     magnitude = {name: magnitude_label(name, effects[name].estimate, benchmarks)
@@ -306,7 +333,7 @@ def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
     rank_like = INDICES[design][primary] in ("ranks", "signs")
     return Decision(
         branch=branch_name, primary=primary, also_report=also,
-        interval=_interval(effects[primary], policy.settings["intervals"]["method"]),
+        interval=quoted_interval(effects[primary], policy.settings["intervals"]["method"]),
         test=test_doc, reasons=reasons, magnitude=magnitude,
         descriptives="median_iqr_range" if rank_like else "mean_sd", fragile=fragile,
         notes=tuple(notes),

@@ -197,10 +197,15 @@ def _rule(effect: Effect, per_case: bool = False) -> str:
     return rule
 
 
+NOT_SEARCHED = "not searched: a screen searches only for the primary index"
+
+
 def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.ndarray, ...],
                      units: Units, level: float,
-                     benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS) -> EffectInfluence:
-    """Leave-one-out summary, flags and fragility of one effect (see the module docstring)."""
+                     benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS,
+                     search: bool = True) -> EffectInfluence:
+    """Leave-one-out summary, flags and fragility of one effect (see the module docstring).
+    With `search` false the fragility counts are left null (`NOT_SEARCHED`)."""
     rule = _rule(effect, per_case=True)
     if effect.estimate is None:
         empty = Fragility(None, (), False)
@@ -255,7 +260,10 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
                 else:
                     contains[k] = exact
         interval_flips = all_rows[known & (contains != base_contains)]
-    frag_sign, frag_null = fragility(spec, effect, samples, units, level)
+    if search:
+        frag_sign, frag_null = fragility(spec, effect, samples, units, level)
+    else:
+        frag_sign = frag_null = Fragility(None, (), False, NOT_SEARCHED)
     return EffectInfluence(
         effect=effect.name, jackknife_se=math.sqrt(se2), bias=bias, max_abs_change=max_change,
         most_influential_row=top_row, sign_flips=tuple(sorted(sign_flips.tolist())),
@@ -345,11 +353,14 @@ def _greedy_search(spec: EffectSpec, effect: Effect, samples, units: Units, leve
 def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samples,
                     loo_by_name: dict[str, tuple[np.ndarray, ...]], units: Units,
                     level: float,
-                    benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS) -> Influence:
-    """Influence of every effect and the per-case table (row, group, value, change per effect)."""
+                    benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS,
+                    search: bool = True) -> Influence:
+    """Influence of every effect in `specs` and the per-case table (row, group, value, change per
+    effect). With `search` false no fragility search is run (see `with_fragility`)."""
     by_name = {e.name: e for e in effects}
     summaries = tuple(effect_influence(spec, by_name[spec.name], samples,
-                                       loo_by_name.get(spec.name, ()), units, level, benchmarks)
+                                       loo_by_name.get(spec.name, ()), units, level, benchmarks,
+                                       search)
                       for spec in specs)
     se = {s.effect: s.jackknife_se for s in summaries}
     rows = np.concatenate(units.rows).astype(np.int64)
@@ -369,3 +380,23 @@ def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samp
         standardized[spec.name] = change / scale if scale else np.full(change.size, np.nan)
     return Influence(units.kind, summaries, rows[order], tuple(labels[i] for i in order),
                      values, changes, standardized)
+
+
+def with_fragility(influence: Influence, spec: EffectSpec, effect: Effect, samples,
+                   loo: tuple[np.ndarray, ...], units: Units, level: float,
+                   benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS) -> Influence:
+    """`influence` with one effect's fragility searched: its summary gains the counts, or, when
+    the table has no summary of it yet, its whole influence (summary and per-case columns) is
+    added. The counts are those `influence_table` finds for the effect."""
+    present = {e.effect: e for e in influence.effects}
+    if spec.name in present:
+        sign, null = fragility(spec, effect, samples, units, level)
+        summary = dataclasses.replace(present[spec.name], fragility_sign=sign,
+                                      fragility_null=null)
+        return dataclasses.replace(influence, effects=tuple(
+            summary if e.effect == spec.name else e for e in influence.effects))
+    added = influence_table([spec], [effect], samples, {spec.name: loo}, units, level, benchmarks)
+    return dataclasses.replace(
+        influence, effects=influence.effects + added.effects,
+        changes={**influence.changes, **added.changes},
+        standardized={**influence.standardized, **added.standardized})

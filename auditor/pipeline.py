@@ -13,13 +13,13 @@ import numpy as np
 from scipy import stats
 
 from auditor import __version__, diagnostics, kgroups, paired, rationale
-from auditor.decide import decide
+from auditor.decide import MEAN_INDEX, POLICY_DESIGN, choose, decide
 from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
                             parse_group_list, wide_repeated)
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
                              paired_effects, two_group_effects)
 from auditor.errors import DesignError, UndefinedEffectWarning
-from auditor.influence import Units, influence_table
+from auditor.influence import Units, influence_table, with_fragility
 from auditor.load import Table, column_position, read_table
 from auditor.parametric import Estimate
 from auditor.policy import Policy, load_policy
@@ -28,6 +28,13 @@ from auditor.resampling import bca_interval, leave_one_out_units, resample_units
 from auditor.results import (AuditResult, Diagnostics, Effect, PairComparison, Samples,
                              Settings)
 
+SCOPES = ("full", "screen")
+SCREEN_COMPANIONS = {  # design -> (mean-based, rank-based) index a screen row shows beside the primary
+    "two_independent": ("cohen_d", "prob_superiority"),
+    "paired": ("d_z", "ps_dep"),
+    "k_independent": ("eta_squared", "epsilon_squared_h"),
+    "k_repeated": ("generalized_eta_squared", "kendall_w"),
+}
 DEFAULT_SEED = 20240917
 DEFAULT_RESAMPLES = 2000
 DEFAULT_LEVEL = 0.95
@@ -56,7 +63,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
           paired_columns: list[str] | str | None = None,
           level: float | None = None, resamples: int | None = None,
           seed: int | None = None, reference: str | None = None,
-          progress: Progress = None, policy=None) -> AuditResult:
+          progress: Progress = None, policy=None, scope: str = "full") -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -70,7 +77,14 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     `policy` is a `policy.Policy`, a path to a policy file, or None for the built-in default; it
     supplies the level, resamples and seed not given here, the magnitude benchmarks, and the
     decision (which index and test to report, with its rationale).
+
+    `scope` "screen" computes only what a screen row shows (`auditor.screen`): every estimate with
+    its analytic interval, but bootstrap intervals and influence only for the indices the row can
+    show (`screen_focus`), the fragility search only for the primary index, no pairwise
+    comparisons and no texts. Every number it does compute equals the full run's.
     """
+    if scope not in SCOPES:
+        raise DesignError(f"scope '{scope}': use one of {', '.join(SCOPES)}")
     policy = policy if isinstance(policy, Policy) else load_policy(policy)
     level = policy.value("intervals", "level") if level is None else level
     resamples = policy.value("bootstrap", "resamples") if resamples is None else resamples
@@ -96,7 +110,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     else:
         table = table_from_frame(data, columns)
     settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
-                    policy=policy)
+                    policy=policy, scope=scope)
     if reference is not None and (wide is not None or subject is not None):
         raise DesignError("--reference applies to two independent groups only (it names the"
                           " group whose SD scales Glass's delta)")
@@ -157,19 +171,69 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
     return AuditResult(
         design=design, outcome=outcome, group_column=group_column, groups=summaries,
         data=account, diagnostics=diag, effects=effects,
-        settings=Settings(settings["level"], settings["resamples"], settings["seed"], reference),
+        settings=Settings(settings["level"], settings["resamples"], settings["seed"], reference,
+                          settings.get("scope", "full")),
         caution=CAUTION, tool_version=__version__, warnings=tuple(notes),
         subject_column=subject, tests=tests or {}, pairwise=tuple(pairwise),
         influence=influence,
     )
 
 
-def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12) -> AuditResult:
+@dataclasses.dataclass(frozen=True)
+class _Work:
+    """What a screen-scope audit keeps to finish the primary index once it is chosen: its
+    fragility search, and its interval when it is a fallback the focus did not cover."""
+
+    specs: tuple[EffectSpec, ...]
+    loo: dict
+    units: Units
+    settings: dict
+    rng: Callable[[], np.random.Generator]  # a fresh generator drawing the same resamples
+
+
+def screen_focus(design: str, policy: Policy) -> frozenset[str]:
+    """The indices a screen row shows for `design`: the primary index of every branch of the
+    policy, the two companions shown beside it, and the index the outlier check watches. (A
+    companion that replaces an undefined primary is finished when it is chosen.)"""
+    table = POLICY_DESIGN[design]
+    primaries = {policy.branch(table, name).primary
+                 for name in (*policy.precedence(table), "assumptions_hold")
+                 if policy.branch(table, name) is not None}
+    return frozenset(primaries | set(SCREEN_COMPANIONS[design]) | {MEAN_INDEX[table]})
+
+
+def _estimate(specs, samples, settings, rng, progress=None, design: str | None = None):
+    """`estimate_all` over the whole registry, or, in the screen scope, focused on the indices
+    the row can show."""
+    policy = settings["policy"]
+    focus = screen_focus(design, policy) if settings.get("scope") == "screen" else None
+    return estimate_all(specs, samples, settings["level"], settings["resamples"], rng, progress,
+                        focus, policy.value("intervals", "method"))
+
+
+def _influence(specs, effects, samples, loo, units, settings, design: str):
+    """Influence of every effect, or, in the screen scope, of the outlier check's index alone
+    without its fragility search (`_decided` adds the primary index's)."""
+    policy = settings["policy"]
+    if settings.get("scope") == "screen":
+        mean = MEAN_INDEX[POLICY_DESIGN[design]]
+        specs = tuple(s for s in specs if s.name == mean and s.name in loo)
+        return influence_table(specs, effects, samples, loo, units, settings["level"],
+                               policy.benchmarks(), search=False)
+    return influence_table(specs, effects, samples, loo, units, settings["level"],
+                           policy.benchmarks())
+
+
+def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
+             work: _Work | None = None) -> AuditResult:
     """The result with the policy's decision and its texts (`decide`, `rationale`), and the
     analysed values kept for figures. The permutation tests draw from their own stream, derived
-    from the seed."""
+    from the seed. In the screen scope (`work` given) the primary index's fragility is searched
+    first, and the texts are left empty."""
     rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
                                                        spawn_key=(PERMUTATION_STREAM,)))
+    if work is not None:
+        result = _finish_primary(result, samples, policy, work)
     decision = decide(result, samples, policy, digits, rng)
     labels = tuple(g.label for g in result.groups)
     if len(samples) == 1:  # participants x conditions
@@ -179,11 +243,40 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12) -> 
     else:
         kept = Samples(labels, tuple(samples))
     result = dataclasses.replace(result, decision=decision, policy=policy.stamp(), samples=kept)
+    if work is not None:
+        return result
     decision = dataclasses.replace(
         decision, rationale=rationale.rationale(result, decision, policy),
         reviewer_note=rationale.reviewer_note(result, decision, policy),
         methods_sentence=rationale.methods_sentence(result, decision, policy))
     return dataclasses.replace(result, decision=decision)
+
+
+def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work) -> AuditResult:
+    """Screen scope: the chosen primary index with its bootstrap interval (when the focus left
+    it out) and its fragility search."""
+    primary = choose(result, policy).primary
+    spec = next(s for s in work.specs if s.name == primary)
+    effect = result.effect(primary)
+    if effect.estimate is None:
+        return result
+    loo = work.loo.get(primary)
+    if loo is None:  # a fallback index: estimate it as the full run does, from the same stream
+        (effect,), _, found = estimate_all(
+            (spec,), samples, work.settings["level"], work.settings["resamples"], work.rng(),
+            None, {primary}, policy.value("intervals", "method"))
+        loo = found[primary]
+        result = dataclasses.replace(result, effects=tuple(
+            effect if e.name == primary else e for e in result.effects))
+    return dataclasses.replace(result, influence=with_fragility(
+        result.influence, spec, effect, samples, loo, work.units, work.settings["level"],
+        policy.benchmarks()))
+
+
+def _work(specs, loo, units, settings, rng) -> _Work | None:
+    if settings.get("scope") != "screen":
+        return None
+    return _Work(tuple(specs), loo, units, settings, rng)
 
 
 # ------------------------------------------------------------------ designs
@@ -197,101 +290,123 @@ def _sorted_groups(design: Groups) -> Groups:
                                rows=tuple(r[o] for r, o in zip(design.rows, orders)))
 
 
-def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress, policy):
+def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress, policy,
+                      scope="full"):
     ref_index = _reference_index(design.labels, reference)
     design = _sorted_groups(design)
     a, b = design.a, design.b
+    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
     specs = two_group_effects(ref_index)
-    effects, notes, loo = estimate_all(specs, (a, b), level, resamples,
-                                       np.random.default_rng(seed), progress)
+    effects, notes, loo = _estimate(specs, (a, b), settings, np.random.default_rng(seed),
+                                    progress, "two_independent")
     units = _group_units(design)
     result = _result("two_independent", design.outcome, design.group_column,
                      _summaries(design.labels, design.values, design.missing), design.account,
-                     _diagnose_two(design, effects), effects, notes,
-                     dict(level=level, resamples=resamples, seed=seed), design.labels[ref_index],
-                     influence=influence_table(specs, effects, (a, b), loo, units, level,
-                                               policy.benchmarks()))
-    return _decided(result, (a, b), policy)
+                     _diagnose_two(design, effects), effects, notes, settings,
+                     design.labels[ref_index],
+                     influence=_influence(specs, effects, (a, b), loo, units, settings,
+                                          "two_independent"))
+    return _decided(result, (a, b), policy,
+                    work=_work(specs, loo, units, settings, lambda: np.random.default_rng(seed)))
 
 
-def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy):
+SCREEN_NO_PAIRS = "pairwise comparisons are not computed in a screen; audit the outcome for them"
+
+
+def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy, scope="full"):
     groups = design.values
     pairs = list(itertools.combinations(range(len(groups)), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
+    first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_independent_effects()
-    effects, notes, loo = estimate_all(specs, groups, level, resamples, rngs[0], progress)
-    comparisons, dunn_p = [], []
-    for (i, j), rng in zip(pairs, rngs[1:]):
-        pair_effects, pair_notes, _ = estimate_all(two_group_effects(1), (groups[i], groups[j]),
-                                                   level, resamples, rng, None)
-        z, p = kgroups.dunn_z(groups, i, j)
-        dunn_p.append(None if not np.isfinite(p) else p)
-        comparisons.append((i, j, pair_effects, None if not np.isfinite(z) else z))
-        notes += [f"{design.labels[i]} vs {design.labels[j]}: {n}" for n in pair_notes]
-    holm = kgroups.holm(dunn_p)
-    pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
-                for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
+    effects, notes, loo = _estimate(specs, groups, settings, rngs[0], progress, "k_independent")
+    pairwise = []
+    if scope == "screen":
+        notes.append(SCREEN_NO_PAIRS)
+    else:
+        comparisons, dunn_p = [], []
+        for (i, j), rng in zip(pairs, rngs[1:]):
+            pair_effects, pair_notes, _ = estimate_all(two_group_effects(1), (groups[i], groups[j]),
+                                                       level, resamples, rng, None)
+            z, p = kgroups.dunn_z(groups, i, j)
+            dunn_p.append(None if not np.isfinite(p) else p)
+            comparisons.append((i, j, pair_effects, None if not np.isfinite(z) else z))
+            notes += [f"{design.labels[i]} vs {design.labels[j]}: {n}" for n in pair_notes]
+        holm = kgroups.holm(dunn_p)
+        pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
+                    for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
     diag = diagnostics.k_screen(design.labels, groups, design.rows)
+    units = _group_units(design)
     result = _result("k_independent", design.outcome, design.group_column,
                      _summaries(design.labels, groups, design.missing), design.account, diag,
-                     effects, notes, dict(level=level, resamples=resamples, seed=seed),
+                     effects, notes, settings,
                      tests=kgroups.independent_tests(groups), pairwise=pairwise,
-                     influence=influence_table(specs, effects, groups, loo, _group_units(design),
-                                               level, policy.benchmarks()))
-    return _decided(result, groups, policy)
+                     influence=_influence(specs, effects, groups, loo, units, settings,
+                                          "k_independent"))
+    return _decided(result, groups, policy,
+                    work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
 
-def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress, policy):
+def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress, policy,
+                    scope="full"):
     x = design.matrix
     digits = paired.difference_digits(x, design.decimals)
     labels = design.labels
     columns = tuple(x[:, k] for k in range(x.shape[1]))
-    settings = dict(level=level, resamples=resamples, seed=seed)
+    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
     if x.shape[1] == 2:
         specs = paired_effects(digits)
-        effects, notes, loo = estimate_all(specs, (x,), level, resamples,
-                                           np.random.default_rng(seed), progress)
+        effects, notes, loo = _estimate(specs, (x,), settings, np.random.default_rng(seed),
+                                        progress, "paired")
         d = paired.differences(x, digits)
         diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
                                          design.rows, digits, paired.sign_test(d))
         tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
                  "paired_t": _paired_t(x[:, 0], x[:, 1])}
+        units = _participant_units(design, d)
         result = _result("paired", outcome, design.group_column,
                          _summaries(labels, columns, design.missing),
                          design.account, diag, effects, notes, settings,
                          subject=design.subject_column, tests=tests,
-                         influence=influence_table(specs, effects, (x,), loo,
-                                                   _participant_units(design, d), level,
-                                                   policy.benchmarks()))
-        return _decided(result, (x,), policy, digits)
+                         influence=_influence(specs, effects, (x,), loo, units, settings,
+                                              "paired"))
+        return _decided(result, (x,), policy, digits, work=_work(
+            specs, loo, units, settings, lambda: np.random.default_rng(seed)))
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_repeated_effects()
-    effects, notes, loo = estimate_all(specs, (x,), level, resamples, rngs[0], progress)
-    comparisons, wil_p = [], []
-    for (i, j), rng in zip(pairs, rngs[1:]):
-        sub = x[:, [i, j]]
-        pair_effects, pair_notes, _ = estimate_all(paired_effects(digits), (sub,), level,
-                                                   resamples, rng, None)
-        w = _wilcoxon(paired.differences(sub, digits))
-        wil_p.append(w["p"])
-        comparisons.append((i, j, pair_effects, w["statistic"]))
-        notes += [f"{labels[i]} vs {labels[j]}: {n}" for n in pair_notes]
-    holm = kgroups.holm(wil_p)
-    pairwise = [PairComparison(labels[i], labels[j], eff, "wilcoxon_signed_rank", stat, p, ph)
-                for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
+    effects, notes, loo = _estimate(specs, (x,), settings, rngs[0], progress, "k_repeated")
+    pairwise = []
+    if scope == "screen":
+        notes.append(SCREEN_NO_PAIRS)
+    else:
+        comparisons, wil_p = [], []
+        for (i, j), rng in zip(pairs, rngs[1:]):
+            sub = x[:, [i, j]]
+            pair_effects, pair_notes, _ = estimate_all(paired_effects(digits), (sub,), level,
+                                                       resamples, rng, None)
+            w = _wilcoxon(paired.differences(sub, digits))
+            wil_p.append(w["p"])
+            comparisons.append((i, j, pair_effects, w["statistic"]))
+            notes += [f"{labels[i]} vs {labels[j]}: {n}" for n in pair_notes]
+        holm = kgroups.holm(wil_p)
+        pairwise = [PairComparison(labels[i], labels[j], eff, "wilcoxon_signed_rank", stat, p, ph)
+                    for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
     sphericity = kgroups.mauchly(x)
     cell_rows = tuple(design.cell_rows[:, k] for k in range(x.shape[1]))
     diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity)
+    units = _participant_units(design, None)
     result = _result("k_repeated", outcome, design.group_column,
                      _summaries(labels, columns, design.missing),
                      design.account, diag, effects, notes, settings,
                      subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
                      pairwise=pairwise,
-                     influence=influence_table(specs, effects, (x,), loo,
-                                               _participant_units(design, None), level,
-                                               policy.benchmarks()))
-    return _decided(result, (x,), policy, digits)
+                     influence=_influence(specs, effects, (x,), loo, units, settings,
+                                          "k_repeated"))
+    return _decided(result, (x,), policy, digits,
+                    work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
 
 def _wilcoxon(d: np.ndarray) -> dict:
@@ -334,23 +449,43 @@ def _guarded(spec: EffectSpec, samples, level) -> Estimate:
     return est
 
 
+SCREENED_OUT = "no interval: a screen resamples only the indices its row can show"
+
+
 def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...], level: float,
-                 resamples: int, rng: np.random.Generator, progress: Progress = None):
+                 resamples: int, rng: np.random.Generator, progress: Progress = None,
+                 focus=None, quoted: str = "analytic"):
     """Every effect in `specs` with its analytic interval and a BCa interval over shared
     stratified resamples of `samples`. Returns (effects, notes about undefined effects,
-    leave-one-out values by effect name)."""
+    leave-one-out values by effect name).
+
+    With `focus` (a set of effect names; used by the screen), only the focus effects get
+    leave-one-out values, and only those whose quoted interval is the bootstrap's (`quoted` is
+    "bootstrap", or the effect has no analytic interval) are resampled; the others keep their
+    analytic interval alone. The resamples are drawn from `rng` exactly as without a focus, so every
+    interval computed is the one the full run gives."""
     estimates = {s.name: _guarded(s, samples, level) for s in specs}
     defined = [s for s in specs if estimates[s.name].value is not None]
     names = {s.name for s in defined}
+    if focus is None:
+        boot_names = loo_names = names
+    else:
+        boot_names = {n for n in names & set(focus)
+                      if quoted == "bootstrap" or estimates[n].interval is None}
+        boot_names |= {s.derived_from[0] for s in defined if s.name in boot_names
+                       and s.derived_from is not None and s.derived_from[0] in names}
+        loo_names = (names & set(focus)) | boot_names
     derived = {s.name: s.derived_from for s in defined
                if s.derived_from is not None and s.derived_from[0] in names}
-    own = [s for s in defined if s.name not in derived]
+    own = [s for s in defined if s.name not in derived and s.name in boot_names]
     by_values = {s.name: s.values for s in own if s.by_counts is None}
     by_counts = {s.name: s.by_counts(*samples) for s in own if s.by_counts is not None}
-    replicates = resample_units(by_values, samples, resamples, rng, progress, by_counts)
+    replicates = (resample_units(by_values, samples, resamples, rng, progress, by_counts)
+                  if own or focus is None else {})
     for name, (source, mapping) in derived.items():
-        replicates[name] = mapping(replicates[source])
-    all_loo = leave_one_out_all(defined, samples)
+        if name in boot_names:
+            replicates[name] = mapping(replicates[source])
+    all_loo = leave_one_out_all([s for s in defined if s.name in loo_names], samples)
     effects, notes, loo_by_name = [], [], {}
     for spec in specs:
         est = estimates[spec.name]
@@ -361,12 +496,18 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             effects.append(Effect(spec.name, spec.family, None, None, None, "none", (),
                                   spec.null_value, spec.assumes, est.reason, est.notes))
             continue
-        loo = all_loo[spec.name]
-        loo_by_name[spec.name] = loo
-        boot = bca_interval(est.value, replicates[spec.name], loo, level, spec.bounds)
-        intervals = tuple(iv for iv in (est.interval, boot.interval) if iv is not None)
-        primary = est.interval if est.interval is not None else boot.interval
-        extra = () if boot.reason is None else (f"bootstrap: {boot.reason}",)
+        if spec.name in loo_names:
+            loo_by_name[spec.name] = all_loo[spec.name]
+        if spec.name in boot_names:
+            boot = bca_interval(est.value, replicates[spec.name], all_loo[spec.name], level,
+                                spec.bounds)
+            extra = () if boot.reason is None else (f"bootstrap: {boot.reason}",)
+            boot_interval = boot.interval
+        else:
+            extra = () if est.interval is not None else (SCREENED_OUT,)
+            boot_interval = None
+        intervals = tuple(iv for iv in (est.interval, boot_interval) if iv is not None)
+        primary = est.interval if est.interval is not None else boot_interval
         effects.append(Effect(
             spec.name, spec.family, float(est.value),
             None if primary is None else primary.low, None if primary is None else primary.high,

@@ -284,6 +284,7 @@ class Settings(_Plain):
     bootstrap_resamples: int
     seed: int
     reference: str | None = None
+    scope: str = "full"  # "screen": only what a screen row shows was computed
 
 
 @dataclass(frozen=True)

@@ -33,6 +33,8 @@ import numpy as np
 
 from auditor.errors import AuditError, DesignError
 from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
+from auditor.decide import quoted_interval
+from auditor.pipeline import SCREEN_COMPANIONS
 
 MULTIPLE_OUTCOMES_NOTE = (
     "Screening many outcomes inflates false positives: with 20 independent outcomes and no real"
@@ -51,12 +53,6 @@ FIELDS = (
     "most_influential_row", "test", "statistic", "df", "p", "p_holm", "p_bh", "seed",
 )
 
-_SIDE_BY_SIDE = {  # design -> (mean-based, rank-based) index shown beside the primary one
-    "two_independent": ("cohen_d", "prob_superiority"),
-    "paired": ("d_z", "ps_dep"),
-    "k_independent": ("eta_squared", "epsilon_squared_h"),
-    "k_repeated": ("generalized_eta_squared", "kendall_w"),
-}
 
 
 def outcome_seed(seed: int, outcome: str) -> int:
@@ -113,12 +109,13 @@ def _fired(result) -> dict[str, bool]:
     return {n: n in fired for n in names}
 
 
-def summary_row(result, seed: int) -> dict:
-    """The screen's row for one audited outcome (see FIELDS)."""
+def summary_row(result, seed: int, policy=None) -> dict:
+    """The screen's row for one audited outcome (see FIELDS); intervals are those `policy` (the
+    one the audit ran under; None for the default) quotes."""
     d = result.decision
     effects = {e.name: e for e in result.effects}
     primary = effects[d.primary]
-    mean_name, rank_name = _SIDE_BY_SIDE[result.design]
+    mean_name, rank_name = SCREEN_COMPANIONS[result.design]
     row = {f: None for f in FIELDS}
     row.update(outcome=result.outcome, status="audited", design=result.design,
                n="; ".join(f"{g.label}: {g.n}" for g in result.groups),
@@ -128,10 +125,13 @@ def summary_row(result, seed: int) -> dict:
                test=d.test["name"], statistic=d.test.get("statistic"),
                df=json.dumps(d.test.get("df")) if isinstance(d.test.get("df"), list)
                else d.test.get("df"), p=d.test.get("p"), seed=seed, **_fired(result))
+    method = "analytic" if policy is None else policy.value("intervals", "method")
     for key, name in (("cohen_d", mean_name), ("prob_superiority", rank_name)):
         e = effects.get(name)
-        if e is not None:
-            row[key], row[f"{key}_low"], row[f"{key}_high"] = e.estimate, e.ci_low, e.ci_high
+        if e is not None:  # the interval the policy quotes, as for the primary index
+            quoted = quoted_interval(e, method)
+            row[key], row[f"{key}_low"], row[f"{key}_high"] = (e.estimate, quoted["low"],
+                                                               quoted["high"])
     check = getattr(result.diagnostics, "normal_theory", None)
     if check is not None:
         row["normal_theory_gap"] = check.gap
@@ -185,13 +185,14 @@ def audit_one(job: _Job, outcome: str) -> dict:
             warnings.simplefilter("ignore")  # every condition is reported in the result
             result = audit(job.table, outcome=outcome, group=job.group,
                            groups=list(job.groups) if job.groups else None, subject=job.subject,
-                           policy=job.policy, seed=seed, resamples=job.resamples, level=job.level)
+                           policy=job.policy, seed=seed, resamples=job.resamples, level=job.level,
+                           scope="full" if job.report_folder else "screen")
     except AuditError as exc:
         return _failed_row(outcome, str(exc), seed)
     except Exception as exc:  # noqa: BLE001 - one outcome's failure must not end the screen
         return _failed_row(outcome, f"internal error ({type(exc).__name__}: {exc}); please"
                            " report it", seed, status="failed")
-    row = summary_row(result, seed)
+    row = summary_row(result, seed, job.policy)
     if job.report_folder:
         from auditor.report import write_report
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 import csv
 import io
 import re
+import warnings
 from html.parser import HTMLParser
 from pathlib import Path
 
@@ -608,3 +609,120 @@ def test_the_api_accepts_column_labels_that_are_not_text():
     frame = pd.DataFrame({"g": ["A", "B"] * 20, 0: np.arange(40.0), 1: np.arange(40.0)[::-1]})
     table = screen(frame, group="g", resamples=BOOT)
     assert list(table["outcome"]) == ["0", "1"] and set(table["status"]) == {"audited"}
+
+
+# ------------------------------------------------------------------ the screen's scope
+
+
+def _bootstrap_policy():
+    """The default policy quoting BCa bootstrap intervals for every index."""
+    from auditor.policy import default_text, parse_policy
+
+    text = default_text().replace('method = "analytic"', 'method = "bootstrap"', 1)
+    assert 'method = "bootstrap"' in text
+    return parse_policy(text, "bootstrap intervals")
+
+
+def _glass_policy():
+    """Every two-group branch reports Glass's delta, with the mean difference next in line (a
+    companion no branch makes primary), and BCa intervals: when the reference group is constant
+    the screen must finish the fallback index on its own."""
+    from auditor.policy import default_text, parse_policy
+
+    head, rest = default_text().split("[two_groups]", 1)
+    section, tail = rest.split("[paired]", 1)
+    lines = []
+    for line in section.splitlines():
+        name = line.split("=", 1)[0].strip()
+        if line.lstrip().startswith(name) and "= { primary" in line:
+            line = (f'{name} = {{ primary = "glass_delta", also = ["mean_difference",'
+                    f' "cohen_d"], test = "welch_t" }}')
+        lines.append(line)
+    text = head + "[two_groups]" + "\n".join(lines) + "\n[paired]" + tail
+    text = text.replace('method = "analytic"', 'method = "bootstrap"', 1)
+    return parse_policy(text, "glass first")
+
+
+def _scope_frames():
+    rng = np.random.default_rng(2026)
+    n = 40
+    two = {
+        "normal shift": np.r_[rng.normal(0.6, 1, n), rng.normal(0, 1, n)],
+        "lognormal": np.r_[rng.lognormal(0.4, 0.9, n), rng.lognormal(0, 0.9, n)],
+        "ratings": np.r_[np.clip(np.round(rng.normal(4.6, 1.3, n)), 1, 7),
+                         np.clip(np.round(rng.normal(4, 1.3, n)), 1, 7)],
+        "one extreme case": np.r_[rng.normal(0.3, 1, n - 1), 14.0, rng.normal(0, 1, n)],
+        "wider second group": np.r_[rng.normal(0.5, 1, n), rng.normal(0, 3, n)],
+        "small groups": np.r_[rng.normal(1, 1, 6), rng.normal(0, 1, 6)],
+        "constant second group": np.r_[rng.normal(0.5, 1, n), np.full(n, 0.25)],
+    }
+    frames = []
+    for name, y in two.items():
+        half = y.size // 2
+        frames.append((name, pd.DataFrame({"g": ["A"] * half + ["B"] * half, "y": y}),
+                       dict(outcome="y", group="g")))
+    k = pd.DataFrame({"g": np.repeat(["a", "b", "c"], 25),
+                      "y": np.r_[rng.normal(0, 1, 25), rng.lognormal(0, 1, 25),
+                                 rng.normal(0.7, 1, 25)]})
+    frames.append(("three groups", k, dict(outcome="y", group="g")))
+    shift = np.repeat([0.0, 0.4, 0.8], 20)
+    long = pd.DataFrame({"id": np.tile(np.arange(20), 3), "t": np.repeat(["t1", "t2", "t3"], 20),
+                         "y": rng.normal(0, 1, 60) + shift})
+    frames.append(("three conditions", long, dict(outcome="y", group="t", subject="id")))
+    frames.append(("two conditions", long[long.t != "t3"], dict(outcome="y", group="t",
+                                                                 subject="id")))
+    wide = pd.DataFrame({"before": rng.lognormal(0, 1, 30), "after": rng.lognormal(0.4, 1, 30)})
+    frames.append(("wide pairs", wide, dict(paired_columns=["before", "after"])))
+    return frames
+
+
+@pytest.mark.parametrize("policy_name", ["default", "bootstrap", "glass"])
+def test_the_screen_scope_gives_the_rows_of_the_full_audit(policy_name):
+    """The screen audits each outcome in the 'screen' scope (bootstrap intervals and influence
+    only where its row looks); every row must equal the one built from the full audit."""
+    from auditor.pipeline import audit
+    from auditor.screen import summary_row
+
+    policy = {"default": default_policy(), "bootstrap": _bootstrap_policy(),
+              "glass": _glass_policy()}[policy_name]
+    fallbacks = 0
+    for name, frame, args in _scope_frames():
+        kwargs = dict(args, policy=policy, seed=11, resamples=BOOT)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # undefined indices of the constant group
+            full = audit(frame, **kwargs)
+            lean = audit(frame, scope="screen", **kwargs)
+        assert lean.settings.scope == "screen" and full.settings.scope == "full"
+        assert summary_row(lean, 1, policy) == summary_row(full, 1, policy), (policy_name, name)
+        assert lean.decision.primary == full.decision.primary
+        fallbacks += bool(lean.decision.notes)
+        for effect in lean.effects:  # what the screen computed, the full audit computed alike
+            assert set(effect.intervals) <= set(full.effect(effect.name).intervals), name
+            assert effect.estimate == full.effect(effect.name).estimate, name
+    if policy_name == "glass":
+        assert fallbacks >= 1  # the constant reference group left Glass's delta undefined
+
+
+def test_the_screen_scope_skips_what_no_row_shows():
+    from auditor.pipeline import SCREENED_OUT, audit
+
+    name, frame, args = _scope_frames()[0]
+    lean = audit(frame, scope="screen", seed=3, resamples=BOOT, **args)
+    searched = [e.effect for e in lean.influence.effects if e.fragility_null.step_limit]
+    assert searched == [lean.decision.primary]
+    assert {e.effect for e in lean.influence.effects} <= {"cohen_d", lean.decision.primary}
+    robust = lean.effect("robust_d")  # no analytic interval, and no row shows it
+    assert robust.estimate is not None and robust.ci_low is None and SCREENED_OUT in robust.notes
+    assert lean.decision.rationale == ""
+    three = next(f for f in _scope_frames() if f[0] == "three groups")
+    lean_k = audit(three[1], scope="screen", seed=3, resamples=BOOT, **three[2])
+    assert lean_k.pairwise == () and any("pairwise" in n for n in lean_k.warnings)
+
+
+def test_an_unknown_scope_is_refused():
+    from auditor.errors import DesignError
+    from auditor.pipeline import audit
+
+    name, frame, args = _scope_frames()[0]
+    with pytest.raises(DesignError, match="scope 'quick'"):
+        audit(frame, scope="quick", **args)
