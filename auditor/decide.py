@@ -14,7 +14,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from auditor import significance
 from auditor.magnitude import magnitude_label
@@ -140,7 +140,8 @@ def _check_ties(ties, policy: Policy) -> Reason:
                   else "ties are few")
 
 
-def _extreme_rows(outliers, rule: str) -> list[int]:
+def extreme_rows(outliers, rule: str) -> list[int]:
+    """File lines of the cases the policy's outlier rule calls extreme, across `outliers`."""
     attr = {"beyond_3_iqr": "beyond_3_iqr_rows", "beyond_1_5_iqr": "beyond_1_5_iqr_rows",
             "modified_z": "modified_z_rows"}[rule]
     return sorted({r for o in outliers for r in getattr(o, attr)})
@@ -150,7 +151,7 @@ def _check_outliers(result: AuditResult, outliers, design: str, policy: Policy) 
     p = policy.settings["outliers"]
     index = MEAN_INDEX[design]
     infl = result.influence
-    rows = _extreme_rows(outliers, p["rule"])
+    rows = extreme_rows(outliers, p["rule"])
     evidence = [Evidence("all groups", f"extreme cases ({p['rule'].replace('_', ' ')})",
                          float(len(rows)), ">=", 1.0, bool(rows))]
     if infl is None or index not in infl.standardized:
@@ -190,7 +191,7 @@ def _standard_error(effect: Effect, summary) -> float | None:
     quantile), else its jackknife SE. The interval's SE is not inflated by the very case being
     judged, as the jackknife SE is."""
     if effect.ci_low is not None and effect.intervals:
-        z = float(stats.norm.ppf(0.5 + effect.intervals[0].level / 2))
+        z = float(special.ndtri(0.5 + effect.intervals[0].level / 2))
         width = (effect.ci_high - effect.ci_low) / (2 * z)
         if width > 0:
             return width

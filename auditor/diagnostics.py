@@ -82,11 +82,15 @@ def anderson_darling(x: np.ndarray) -> tuple[float, float]:
     return float(a2), float(min(max(p, 0.0), 1.0))
 
 
-def normality(label: str, x: np.ndarray) -> Normality:
+BRIEF_NOTE = "not computed in a screen (the policy's checks do not read it)"
+
+
+def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
     """Shapiro-Wilk (3 <= n <= 5000), D'Agostino-Pearson K2 (n >= 20), Anderson-Darling, G1, G2.
 
     G1 and G2 are the bias-corrected sample skewness and excess kurtosis (Joanes & Gill 1998,
-    'G' estimators; scipy.stats.skew/kurtosis with bias=False).
+    'G' estimators; scipy.stats.skew/kurtosis with bias=False). `brief` (a screen) leaves out
+    K2 and Anderson-Darling, which the policy's checks do not read.
     """
     n = int(x.size)
     notes: list[str] = []
@@ -103,12 +107,14 @@ def normality(label: str, x: np.ndarray) -> Normality:
                          " other tests and on skewness and kurtosis")
         else:
             notes.append("Shapiro-Wilk needs at least 3 values")
-        if n >= DAGOSTINO_MIN_N:
+        if brief:
+            notes.append(f"D'Agostino-Pearson and Anderson-Darling: {BRIEF_NOTE}")
+        elif n >= DAGOSTINO_MIN_N:
             res = _quiet(stats.normaltest, x)
             k2, k2_p = _finite(res.statistic), _finite(res.pvalue)
         else:
             notes.append(f"D'Agostino-Pearson needs at least {DAGOSTINO_MIN_N} values")
-        if n >= 3:
+        if n >= 3 and not brief:
             a2, a2_p = anderson_darling(x)
         if n >= 3:
             g1 = _finite(_quiet(stats.skew, x, bias=False))
@@ -139,12 +145,13 @@ def equal_spread_tests(*groups: np.ndarray):
     return tuple(out)
 
 
-def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
+def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, brief: bool = False) -> Spread:
     """Compare the spread of two groups.
 
     SD ratio (larger over smaller), IQR and MAD ratios (robust), Levene's test centred on means,
     the Brown-Forsythe variant centred on medians, and Fligner-Killeen (scipy.stats.levene and
-    scipy.stats.fligner). Ratios are None when the smaller spread is zero.
+    scipy.stats.fligner). Ratios are None when the smaller spread is zero. `brief` (a screen)
+    leaves out the three tests, which the policy's checks do not read.
     """
     notes: list[str] = []
     sd = (float(sample_sd(a)), float(sample_sd(b)))
@@ -152,6 +159,9 @@ def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray) -> Spread:
     mad = (float(stats.median_abs_deviation(a)), float(stats.median_abs_deviation(b)))
     if min(sd) == 0:
         notes.append("a group has zero spread: tests of equal spread are undefined")
+        lev = bf = fl = (None, None)
+    elif brief:
+        notes.append(f"tests of equal spread: {BRIEF_NOTE}")
         lev = bf = fl = (None, None)
     else:
         lev, bf, fl = equal_spread_tests(a, b)
@@ -230,7 +240,8 @@ def normal_theory_check(d: float | None, observed_a: float | None) -> NormalTheo
 
 
 def paired_screen(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, d: np.ndarray,
-                  rows: np.ndarray, digits: int, sign: dict) -> PairedDiagnostics:
+                  rows: np.ndarray, digits: int, sign: dict,
+                  brief: bool = False) -> PairedDiagnostics:
     """Screening of paired data: normality, ties and outliers of the differences d = a - b (the
     quantities the paired t interval and the signed-rank methods assume things about), the share
     of zero differences, the Pearson correlation of the two conditions (scipy.stats.pearsonr),
@@ -240,8 +251,8 @@ def paired_screen(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, d: np.n
         res = _quiet(stats.pearsonr, a, b)
         corr, corr_p = _finite(res.statistic), _finite(res.pvalue)
     return PairedDiagnostics(
-        differences_normality=normality("differences", d),
-        conditions_normality=tuple(normality(lab, x) for lab, x in zip(labels, (a, b))),
+        differences_normality=normality("differences", d, brief),
+        conditions_normality=tuple(normality(lab, x, brief) for lab, x in zip(labels, (a, b))),
         differences_ties=ties("differences", d),
         differences_outliers=outliers("differences", d, rows, float(d.min()), float(d.max())),
         zero_share=float(np.mean(d == 0)), correlation=corr, correlation_p=corr_p,
@@ -249,7 +260,8 @@ def paired_screen(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, d: np.n
     )
 
 
-def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...]) -> KSpread:
+def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...],
+             brief: bool = False) -> KSpread:
     """Spread across k groups: largest over smallest SD, Levene (mean-centred), Brown-Forsythe
     (median-centred) and Fligner-Killeen across all groups (scipy.stats), and the n ratio."""
     sds = [float(sample_sd(g)) for g in groups]
@@ -257,6 +269,9 @@ def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...]) -> KSpread
     notes: list[str] = []
     if sds[lo] == 0:
         notes.append("a group has zero spread: tests of equal spread are undefined")
+        lev = bf = fl = (None, None)
+    elif brief:
+        notes.append(f"tests of equal spread: {BRIEF_NOTE}")
         lev = bf = fl = (None, None)
     else:
         lev, bf, fl = equal_spread_tests(*groups)
@@ -270,14 +285,16 @@ def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...]) -> KSpread
 
 
 def k_screen(labels: tuple[str, ...], groups: tuple[np.ndarray, ...],
-             rows: tuple[np.ndarray, ...], sphericity: dict | None = None) -> KDiagnostics:
+             rows: tuple[np.ndarray, ...], sphericity: dict | None = None,
+             brief: bool = False) -> KDiagnostics:
     """Screening of k groups or conditions: each one's normality and outliers, spread across
-    all, pooled ties, and (repeated conditions) Mauchly's sphericity test."""
+    all, pooled ties, and (repeated conditions) Mauchly's sphericity test. `brief`: see
+    `normality` and `k_spread`."""
     pooled = np.concatenate(groups)
     floor, ceiling = float(pooled.min()), float(pooled.max())
     return KDiagnostics(
-        normality=tuple(normality(lab, g) for lab, g in zip(labels, groups)),
-        spread=k_spread(labels, groups),
+        normality=tuple(normality(lab, g, brief) for lab, g in zip(labels, groups)),
+        spread=k_spread(labels, groups, brief),
         ties=ties("pooled", pooled),
         outliers=tuple(outliers(lab, g, r, floor, ceiling)
                        for lab, g, r in zip(labels, groups, rows)),

@@ -203,9 +203,12 @@ NOT_SEARCHED = "not searched: a screen searches only for the primary index"
 def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.ndarray, ...],
                      units: Units, level: float,
                      benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS,
-                     search: bool = True) -> EffectInfluence:
+                     search: bool = True, recheck_rows=None) -> EffectInfluence:
     """Leave-one-out summary, flags and fragility of one effect (see the module docstring).
-    With `search` false the fragility counts are left null (`NOT_SEARCHED`)."""
+    With `search` false the fragility counts are left null (`NOT_SEARCHED`). With `recheck_rows`
+    (file lines), only those units get the exact interval recheck they would otherwise get; the
+    other units' interval flips rest on the shifted interval (a screen passes the extreme cases,
+    the only units whose flips the outlier check reads)."""
     rule = _rule(effect, per_case=True)
     if effect.estimate is None:
         empty = Fragility(None, (), False)
@@ -251,6 +254,9 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
             picked = np.flatnonzero(near)
             if total > EXACT_ALL_UNITS:
                 picked = picked[np.argsort(distance[picked], kind="stable")][:EXACT_NEAR_MAX]
+            if recheck_rows is not None:
+                picked = picked[np.isin(all_rows[picked], np.asarray(list(recheck_rows),
+                                                                     dtype=all_rows.dtype))]
             for k in picked:
                 j, i = int(strata[k]), int(positions[k])
                 exact = _interval_contains(spec, effect, _delete(samples, j, i), level,
@@ -354,13 +360,14 @@ def influence_table(specs: Sequence[EffectSpec], effects: Sequence[Effect], samp
                     loo_by_name: dict[str, tuple[np.ndarray, ...]], units: Units,
                     level: float,
                     benchmarks: dict[str, Benchmarks] = DEFAULT_BENCHMARKS,
-                    search: bool = True) -> Influence:
+                    search: bool = True, recheck_rows=None) -> Influence:
     """Influence of every effect in `specs` and the per-case table (row, group, value, change per
-    effect). With `search` false no fragility search is run (see `with_fragility`)."""
+    effect). With `search` false no fragility search is run (see `with_fragility`);
+    `recheck_rows`: see `effect_influence`."""
     by_name = {e.name: e for e in effects}
     summaries = tuple(effect_influence(spec, by_name[spec.name], samples,
                                        loo_by_name.get(spec.name, ()), units, level, benchmarks,
-                                       search)
+                                       search, recheck_rows)
                       for spec in specs)
     se = {s.effect: s.jackknife_se for s in summaries}
     rows = np.concatenate(units.rows).astype(np.int64)

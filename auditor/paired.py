@@ -19,7 +19,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import stats
+from scipy import special, stats
 
 from auditor.moments import mean_var
 from auditor.pair_sums import pair_sums
@@ -163,7 +163,7 @@ def mean_difference(a, b, level, digits=12) -> Estimate:
     m, v = float(m), float(v)
     if v == 0:
         return Estimate(m, None, None, ("every difference is equal: no interval",))
-    h = stats.t.ppf(0.5 + level / 2, n - 1) * math.sqrt(v / n)
+    h = special.stdtrit(n - 1, 0.5 + level / 2) * math.sqrt(v / n)
     return Estimate(m, Interval("paired_t", m - h, m + h, level))
 
 
@@ -177,7 +177,7 @@ def d_z(a, b, level, digits=12) -> Estimate:
         return Estimate(None, None, "every difference is equal: SD of the differences is zero")
     limits = noncentral_t_limits(value * math.sqrt(n), n - 1, level)
     if limits is None:
-        z = stats.norm.ppf(0.5 + level / 2)
+        z = special.ndtri(0.5 + level / 2)
         se = math.sqrt(1.0 / n + value * value / (2.0 * n))
         return Estimate(value, Interval("normal_approximation", value - z * se, value + z * se,
                                         level, "noncentral-t inversion failed numerically"))
@@ -210,7 +210,7 @@ def ps_dep(a, b, level, digits=12) -> Estimate:
     n = d.size
     pos, zero = int(np.sum(d > 0)), int(np.sum(d == 0))
     p = (pos + 0.5 * zero) / n
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = special.ndtri(0.5 + level / 2)
     centre = (p + z * z / (2 * n)) / (1 + z * z / n)
     half = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / (1 + z * z / n)
     discarded = pos / (n - zero) if n > zero else None
@@ -260,7 +260,7 @@ def walsh_interval_order(n: int, level: float, exact: bool, tie_term: float = 0.
         k = int(below[-1]) + 1 if below.size else 1
         return k, "exact", 1 - 2 * float(cdf[k - 1])
     var = n * (n + 1) * (2 * n + 1) / 24.0 - tie_term / 48.0
-    k = int(math.floor(m / 2.0 - stats.norm.ppf(1 - alpha2) * math.sqrt(var)))
+    k = int(math.floor(m / 2.0 - special.ndtri(1 - alpha2) * math.sqrt(var)))
     return max(k, 1), "normal_approximation", None
 
 

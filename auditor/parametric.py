@@ -150,7 +150,7 @@ def mean_difference(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     if se2 == 0:
         return Estimate(diff, None, None, ("both groups are constant: no interval",))
     nu = se2**2 / ((va / na) ** 2 / (na - 1) + (vb / nb) ** 2 / (nb - 1))
-    h = stats.t.ppf(0.5 + level / 2, nu) * math.sqrt(se2)
+    h = special.stdtrit(nu, 0.5 + level / 2) * math.sqrt(se2)
     return Estimate(diff, Interval("welch_t", diff - h, diff + h, level))
 
 
@@ -213,7 +213,7 @@ def cohen_d(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     limits = noncentral_t_limits(d * scale, na + nb - 2, level)
     if limits is not None:
         return Estimate(d, Interval("noncentral_t", limits[0] / scale, limits[1] / scale, level))
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = special.ndtri(0.5 + level / 2)
     se = _d_normal_se(d, na, nb)
     return Estimate(d, Interval("normal_approximation", d - z * se, d + z * se, level,
                                 "noncentral-t inversion failed numerically; normal approximation"))
@@ -243,7 +243,7 @@ def glass_delta(a: np.ndarray, b: np.ndarray, level: float, reference: int = 1) 
     ref, other = (b, a) if reference == 1 else (a, b)
     ratio = mean_var(other)[1] / mean_var(ref)[1]
     se = math.sqrt(ratio / other.size + 1.0 / ref.size + value**2 / (2.0 * (ref.size - 1)))
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = special.ndtri(0.5 + level / 2)
     return Estimate(value, Interval("normal_approximation", value - z * se, value + z * se, level))
 
 
@@ -260,7 +260,7 @@ def d_unpooled(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
         return _undefined("both groups are constant: the average variance is zero")
     var = value**2 * (va**2 / (na - 1) + vb**2 / (nb - 1)) / (8 * s2**2) + (
         va / (na - 1) + vb / (nb - 1)) / s2
-    z = stats.norm.ppf(0.5 + level / 2)
+    z = special.ndtri(0.5 + level / 2)
     se = math.sqrt(var)
     return Estimate(value, Interval("bonett_normal", value - z * se, value + z * se, level))
 

@@ -13,7 +13,7 @@ import numpy as np
 from scipy import stats
 
 from auditor import __version__, diagnostics, kgroups, paired, rationale
-from auditor.decide import MEAN_INDEX, POLICY_DESIGN, choose, decide
+from auditor.decide import MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows
 from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
                             parse_group_list, wide_repeated)
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
@@ -211,15 +211,22 @@ def _estimate(specs, samples, settings, rng, progress=None, design: str | None =
                         focus, policy.value("intervals", "method"))
 
 
-def _influence(specs, effects, samples, loo, units, settings, design: str):
-    """Influence of every effect, or, in the screen scope, of the outlier check's index alone
-    without its fragility search (`_decided` adds the primary index's)."""
+def _influence(specs, effects, samples, loo, units, settings, design: str, diag):
+    """Influence of every effect, or, in the screen scope, of the outlier check's index alone,
+    without its fragility search (`_decided` adds the primary index's) and with exact interval
+    rechecks only for the cases the outlier check reads (the extreme ones; every participant in
+    k repeated conditions)."""
     policy = settings["policy"]
     if settings.get("scope") == "screen":
         mean = MEAN_INDEX[POLICY_DESIGN[design]]
         specs = tuple(s for s in specs if s.name == mean and s.name in loo)
+        outliers = {"two_independent": getattr(diag, "outliers", None),
+                    "k_independent": getattr(diag, "outliers", None),
+                    "paired": (getattr(diag, "differences_outliers", None),)}.get(design)
+        rows = (None if outliers is None
+                else frozenset(extreme_rows(outliers, policy.value("outliers", "rule"))))
         return influence_table(specs, effects, samples, loo, units, settings["level"],
-                               policy.benchmarks(), search=False)
+                               policy.benchmarks(), search=False, recheck_rows=rows)
     return influence_table(specs, effects, samples, loo, units, settings["level"],
                            policy.benchmarks())
 
@@ -300,12 +307,12 @@ def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, prog
     effects, notes, loo = _estimate(specs, (a, b), settings, np.random.default_rng(seed),
                                     progress, "two_independent")
     units = _group_units(design)
+    diag = _diagnose_two(design, effects, scope == "screen")
     result = _result("two_independent", design.outcome, design.group_column,
                      _summaries(design.labels, design.values, design.missing), design.account,
-                     _diagnose_two(design, effects), effects, notes, settings,
-                     design.labels[ref_index],
+                     diag, effects, notes, settings, design.labels[ref_index],
                      influence=_influence(specs, effects, (a, b), loo, units, settings,
-                                          "two_independent"))
+                                          "two_independent", diag))
     return _decided(result, (a, b), policy,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(seed)))
 
@@ -336,14 +343,14 @@ def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy,
         holm = kgroups.holm(dunn_p)
         pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
                     for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
-    diag = diagnostics.k_screen(design.labels, groups, design.rows)
+    diag = diagnostics.k_screen(design.labels, groups, design.rows, brief=scope == "screen")
     units = _group_units(design)
     result = _result("k_independent", design.outcome, design.group_column,
                      _summaries(design.labels, groups, design.missing), design.account, diag,
                      effects, notes, settings,
                      tests=kgroups.independent_tests(groups), pairwise=pairwise,
                      influence=_influence(specs, effects, groups, loo, units, settings,
-                                          "k_independent"))
+                                          "k_independent", diag))
     return _decided(result, groups, policy,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
@@ -361,7 +368,8 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                                         progress, "paired")
         d = paired.differences(x, digits)
         diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
-                                         design.rows, digits, paired.sign_test(d))
+                                         design.rows, digits, paired.sign_test(d),
+                                         brief=scope == "screen")
         tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
                  "paired_t": _paired_t(x[:, 0], x[:, 1])}
         units = _participant_units(design, d)
@@ -370,7 +378,7 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                          design.account, diag, effects, notes, settings,
                          subject=design.subject_column, tests=tests,
                          influence=_influence(specs, effects, (x,), loo, units, settings,
-                                              "paired"))
+                                              "paired", diag))
         return _decided(result, (x,), policy, digits, work=_work(
             specs, loo, units, settings, lambda: np.random.default_rng(seed)))
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
@@ -396,7 +404,7 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                     for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
     sphericity = kgroups.mauchly(x)
     cell_rows = tuple(design.cell_rows[:, k] for k in range(x.shape[1]))
-    diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity)
+    diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity, brief=scope == "screen")
     units = _participant_units(design, None)
     result = _result("k_repeated", outcome, design.group_column,
                      _summaries(labels, columns, design.missing),
@@ -404,7 +412,7 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                      subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
                      pairwise=pairwise,
                      influence=_influence(specs, effects, (x,), loo, units, settings,
-                                          "k_repeated"))
+                                          "k_repeated", diag))
     return _decided(result, (x,), policy, digits,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
@@ -539,13 +547,13 @@ def leave_one_out_values(spec: EffectSpec, samples) -> tuple[np.ndarray, ...]:
     return leave_one_out_units(spec.values, samples)
 
 
-def _diagnose_two(design: Groups, effects: tuple[Effect, ...]) -> Diagnostics:
+def _diagnose_two(design: Groups, effects: tuple[Effect, ...], brief: bool = False) -> Diagnostics:
     a, b = design.a, design.b
     labels = (design.labels[0], design.labels[1])
     pooled = np.concatenate([a, b])
     residuals = np.concatenate([a - a.mean(), b - b.mean()])
-    normality = tuple(diagnostics.normality(lab, x) for lab, x in zip(labels, (a, b))) + (
-        diagnostics.normality("residuals (each group centred on its mean)", residuals),)
+    normality = tuple(diagnostics.normality(lab, x, brief) for lab, x in zip(labels, (a, b))) + (
+        diagnostics.normality("residuals (each group centred on its mean)", residuals, brief),)
     floor, ceiling = float(pooled.min()), float(pooled.max())
     outliers = tuple(diagnostics.outliers(lab, x, rows, floor, ceiling)
                      for lab, x, rows in zip(labels, design.values, design.rows))
@@ -554,7 +562,7 @@ def _diagnose_two(design: Groups, effects: tuple[Effect, ...]) -> Diagnostics:
                                             by_name["prob_superiority"].estimate)
     return Diagnostics(
         normality=normality,
-        spread=diagnostics.spread(labels, a, b),
+        spread=diagnostics.spread(labels, a, b, brief),
         ties=diagnostics.ties("pooled", pooled),
         ties_by_group=tuple(diagnostics.ties(lab, x) for lab, x in zip(labels, (a, b))),
         outliers=outliers,

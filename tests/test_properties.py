@@ -423,3 +423,29 @@ def test_bca_matches_scipy_bootstrap_on_the_same_stream():
                           confidence_level=LEVEL, rng=np.random.default_rng(31))
     assert ours.low == pytest.approx(ref.confidence_interval.low, rel=1e-9)
     assert ours.high == pytest.approx(ref.confidence_interval.high, rel=1e-9)
+
+
+# ---------------------------------------------------------------- mid-ranks
+
+
+@STEADY
+@given(st.lists(st.one_of(st.integers(-3, 3).map(float),
+                          st.floats(allow_nan=False, width=64),
+                          st.sampled_from([0.0, -0.0, math.inf, -math.inf])),
+                min_size=1, max_size=40))
+def test_midranks_equal_scipy_rankdata(values):
+    from scipy import stats
+
+    x = np.asarray(values, dtype=float)
+    assert np.array_equal(ranks.midranks(x), stats.rankdata(x))
+    whole = np.round(np.clip(x[np.isfinite(x)], -1e6, 1e6)).astype(np.int64)
+    assert np.array_equal(ranks.midranks(whole), stats.rankdata(whole))
+
+
+def test_midranks_of_arrays_with_nan_or_more_axes_are_scipy_s():
+    from scipy import stats
+
+    with_nan = np.array([2.0, np.nan, 1.0])
+    assert np.array_equal(ranks.midranks(with_nan), stats.rankdata(with_nan), equal_nan=True)
+    grid = np.array([[3.0, 1.0, 3.0], [0.0, 0.0, 5.0]])
+    assert np.array_equal(ranks.midranks(grid), stats.rankdata(grid, axis=-1))
