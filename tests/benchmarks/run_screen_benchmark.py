@@ -109,8 +109,15 @@ def _cohen_d(x, y, axis=-1):
 
 
 def _hedges_g(x, y, axis=-1):
-    df = x.shape[axis] + y.shape[axis] - 2
-    return _cohen_d(x, y, axis) * (1 - 3 / (4 * df - 1))
+    from scipy.special import gammaln
+
+    df = x.shape[axis] + y.shape[axis] - 2  # the exact factor J (Hedges 1981), as the screen's
+    return _cohen_d(x, y, axis) * np.exp(gammaln(df / 2) - gammaln((df - 1) / 2)) / np.sqrt(df / 2)
+
+
+def _d_unpooled(x, y, axis=-1):
+    average = (x.var(axis=axis, ddof=1) + y.var(axis=axis, ddof=1)) / 2
+    return (x.mean(axis=axis) - y.mean(axis=axis)) / np.sqrt(average)
 
 
 def _prob_superiority(x, y, axis=-1):
@@ -119,14 +126,81 @@ def _prob_superiority(x, y, axis=-1):
     return stats.mannwhitneyu(x, y, axis=axis).statistic / (x.shape[axis] * y.shape[axis])
 
 
-def _cliff_delta(x, y, axis=-1):
-    return 2 * _prob_superiority(x, y, axis) - 1
+INDEX = {"cohen_d": _cohen_d, "hedges_g": _hedges_g, "d_unpooled": _d_unpooled,
+         "prob_superiority": _prob_superiority}
 
 
-def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int) -> dict:
-    """The statistics of one outcome, computed plainly with scipy and pingouin."""
+def _test_p(name: str, a: np.ndarray, b: np.ndarray) -> float:
+    from scipy import stats
+
+    if name == "student_t":
+        return stats.ttest_ind(a, b).pvalue
+    if name == "welch_t":
+        return stats.ttest_ind(a, b, equal_var=False).pvalue
+    return stats.brunnermunzel(a, b).pvalue
+
+
+def _interval_holds_null(name: str, a: np.ndarray, b: np.ndarray, level: float) -> bool:
+    """Does the index's analytic interval (the one the screen's fragility search recomputes)
+    contain the no-effect value? For g (noncentral t) and A (Brunner-Munzel t) by the duality of
+    interval and test: it does exactly when the two-sided p of Student's t or of scipy's
+    Brunner-Munzel test is at least 1 - level. For d with unpooled SDs, Bonett's (2008) normal
+    interval, written out."""
+    from scipy import stats
+
+    if name == "hedges_g":
+        return stats.ttest_ind(a, b).pvalue >= 1 - level
+    if name == "prob_superiority":
+        return stats.brunnermunzel(a, b).pvalue >= 1 - level
+    na, nb, va, vb = a.size, b.size, a.var(ddof=1), b.var(ddof=1)
+    s2 = (va + vb) / 2
+    d = _d_unpooled(a, b)
+    se = np.sqrt(d**2 * (va**2 / (na - 1) + vb**2 / (nb - 1)) / (8 * s2**2)
+                 + (va / (na - 1) + vb / (nb - 1)) / s2)
+    return abs(d) <= stats.norm.ppf(0.5 + level / 2) * se
+
+
+def plain_fragility(a: np.ndarray, b: np.ndarray, name: str, level: float = 0.95,
+                    limit: int = 200) -> int | None:
+    """The screen's fragility count, searched plainly: remove, one at a time, the value whose
+    removal (found by refitting the index without each remaining value) moves the estimate
+    furthest toward the no-effect value, the earlier file line first among equals, until the
+    analytic interval holds the no-effect value. `a` and `b` are in file order (group A's lines
+    come first); no group shrinks below 2 values; None after `limit` removals."""
+    fn, null = INDEX[name], (0.5 if name == "prob_superiority" else 0.0)
+    if _interval_holds_null(name, a, b, level):
+        return 0
+    side = np.sign(fn(a, b) - null)
+    keep = [list(range(a.size)), list(range(b.size))]
+    for step in range(1, limit + 1):
+        best = None  # (score, file line, group, position)
+        for k in (0, 1):
+            if len(keep[k]) - 1 < 2:
+                continue
+            for pos, i in enumerate(keep[k]):
+                rest = [j for j in keep[k] if j != i]
+                pair = (a[rest], b[keep[1]]) if k == 0 else (a[keep[0]], b[rest])
+                candidate = (side * (fn(*pair) - null), i + (0 if k == 0 else a.size), k, pos)
+                if best is None or candidate[:2] < best[:2]:
+                    best = candidate
+        if best is None:
+            return None
+        del keep[best[2]][best[3]]
+        if _interval_holds_null(name, a[keep[0]], b[keep[1]], level):
+            return step
+    return None
+
+
+def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int,
+                     primary: str = "hedges_g", test: str = "student_t") -> dict:
+    """The statistics of one screen row, computed plainly with scipy and pingouin: the
+    diagnostics, d, A and the primary index with BCa intervals, the primary test's p, and the
+    leave-one-out values of d (the outlier check) and of the primary index (the most influential
+    case) by refitting."""
     import pingouin
     from scipy import stats
+
+    from auditor.resampling import chunk_size
 
     out = {
         "shapiro_p": [stats.shapiro(x).pvalue for x in (a, b)],
@@ -134,24 +208,26 @@ def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int) ->
                           for x in (a, b)],
         "levene_p": stats.levene(a, b).pvalue,
         "d": pingouin.compute_effsize(a, b, eftype="cohen"),
-        "g": pingouin.compute_effsize(a, b, eftype="hedges"),
         "A": _prob_superiority(a, b),
-        "hodges_lehmann": float(np.median(np.subtract.outer(a, b))),
-        "t_p": stats.ttest_ind(a, b).pvalue,
-        "brunner_munzel_p": stats.brunnermunzel(a, b).pvalue,
+        "p": _test_p(test, a, b),
+        "normal_theory_gap": None,
     }
-    out["cliff_delta"] = 2 * out["A"] - 1
-    for name, fn in (("d", _cohen_d), ("g", _hedges_g), ("A", _prob_superiority),
-                     ("cliff_delta", _cliff_delta)):
-        res = stats.bootstrap((a, b), fn, n_resamples=resamples, method="BCa",
-                              rng=np.random.default_rng(seed))
+    out["normal_theory_gap"] = out["A"] - stats.norm.cdf(out["d"] / np.sqrt(2))
+    shown = dict.fromkeys(["cohen_d", "prob_superiority", primary])
+    # the screen holds each group in increasing order and draws from default_rng(seed) in
+    # chunks: with the groups sorted and `batch` set to the chunk, scipy draws the same resamples
+    batch = chunk_size(a.size, b.size, resamples)
+    for name in shown:
+        res = stats.bootstrap((np.sort(a), np.sort(b)), INDEX[name], n_resamples=resamples, method="BCa",
+                              batch=batch, rng=np.random.default_rng(seed))
         out[f"{name}_bca"] = tuple(res.confidence_interval)
     removals = []
-    for k, x in enumerate((a, b)):  # refit d and A after removing each value in turn
+    watched = [INDEX[n] for n in dict.fromkeys(["cohen_d", primary])]
+    for k, x in enumerate((a, b)):  # refit d and the primary index without each value in turn
         for i in range(x.size):
             kept = np.delete(x, i)
             pair = (kept, b) if k == 0 else (a, kept)
-            removals.append((_cohen_d(*pair), _prob_superiority(*pair)))
+            removals.append([fn(*pair) for fn in watched])
     out["leave_one_out"] = np.array(removals)
     return out
 
@@ -180,40 +256,79 @@ def _peak_bytes(who=resource.RUSAGE_SELF) -> int:
     return peak if sys.platform == "darwin" else peak * 1024  # bytes on macOS, KiB elsewhere
 
 
+def bootstrap_policy():
+    """The default policy with `intervals.method = "bootstrap"`: every interval of a screen row is
+    then a BCa interval over the B resamples (with the default, analytic intervals, a two-group
+    row needs no bootstrap at all)."""
+    from auditor.policy import default_text, parse_policy
+
+    text = default_text().replace('method = "analytic"', 'method = "bootstrap"', 1)
+    return parse_policy(text, "default policy, bootstrap intervals")
+
+
+def _screen_timed(path, resamples, jobs, folder, policy):
+    from auditor.screen import run_screen
+
+    start = time.perf_counter()
+    files, skipped = run_screen(path, group="arm", resamples=resamples, jobs=jobs, out=folder,
+                                policy=policy)
+    return time.perf_counter() - start, files, skipped
+
+
 def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: int,
-                 baseline_count: int, repeats: int) -> dict:
+                 baseline_count: int, repeats: int, default_too: bool) -> dict:
     """Runs in a fresh spawned process: ours (timed, memory), then the baseline (timed)."""
     from auditor.screen import run_screen
 
+    policy = bootstrap_policy()
     with tempfile.TemporaryDirectory() as folder:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            run_screen(warmup, group="arm", resamples=100, jobs=1, out=Path(folder) / "warm")
+            run_screen(warmup, group="arm", resamples=100, jobs=1, out=Path(folder) / "warm",
+                       policy=policy)
         gc.collect()
         before = _resident_bytes()
         before = _peak_bytes() if before is None else before
-        start = time.perf_counter()
-        files, skipped = run_screen(path, group="arm", resamples=resamples, jobs=jobs,
-                                    out=Path(folder) / "screen")
-        seconds = time.perf_counter() - start
+        seconds, files, skipped = _screen_timed(path, resamples, jobs, Path(folder) / "screen",
+                                                policy)
         extra_peak = _peak_bytes() - before
         worker_peak = _peak_bytes(resource.RUSAGE_CHILDREN)
         rows = json.loads(files.json.read_text(encoding="utf-8"))["rows"]
+        default_seconds = (_screen_timed(path, resamples, jobs, Path(folder) / "default", None)[0]
+                           if default_too else None)
     assert files.rows == outcomes and not skipped, (files.rows, skipped)
     assert all(r["status"] == "audited" for r in rows), [r["reason"] for r in rows if r["reason"]]
 
-    chosen = [r["outcome"] for r in rows[:baseline_count]]
-    data = read_groups(Path(path), chosen)
+    picked = rows[:baseline_count]
+    data = read_groups(Path(path), [r["outcome"] for r in picked])
+
+    def baseline(row):
+        return baseline_outcome(*data[row["outcome"]], resamples, row["seed"], row["primary"],
+                                row["test"])
+
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        results = {c: baseline_outcome(*data[c], resamples, 0) for c in chosen}
-        t_baseline = best_of(lambda: [baseline_outcome(*data[c], resamples, 0)
-                                       for c in chosen], repeats)
-    gap = 0.0
-    for row in rows[:baseline_count]:  # the baseline computes the statistics the screen reports
-        mine = results[row["outcome"]]
-        gap = max(gap, abs(mine["d"] - row["cohen_d"]), abs(mine["A"] - row["prob_superiority"]))
+        results = [baseline(r) for r in picked]
+        t_baseline = best_of(lambda: [baseline(r) for r in picked], repeats)
+    gap = interval_gap = 0.0
+    for row, mine in zip(picked, results):  # the baseline computes the statistics of the row
+        gap = max(gap, abs(mine["d"] - row["cohen_d"]), abs(mine["A"] - row["prob_superiority"]),
+                  abs(mine["p"] - row["p"]) if row["p"] is not None else 0.0)
+        for name, key in (("cohen_d", "cohen_d"), ("prob_superiority", "prob_superiority"),
+                          (row["primary"], "ci")):
+            low, high = mine[f"{name}_bca"]
+            interval_gap = max(interval_gap, abs(low - row[f"{key}_low"]),
+                               abs(high - row[f"{key}_high"]))
     assert gap < 1e-9, gap
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        start = time.perf_counter()  # one run: the plain search takes seconds per outcome
+        counts = [plain_fragility(*data[r["outcome"]], r["primary"]) for r in picked]
+        t_fragility = time.perf_counter() - start
+    assert counts == [r["fragility"] for r in picked], (counts, [r["fragility"] for r in picked])
+    # rating data: replicates of A equal to the estimate, where the last bit decides on which
+    # side of it they count, move a BCa limit by about 1e-5
+    assert interval_gap < 1e-4, interval_gap
     tracemalloc.start()  # what the screen holds of the input: the file's cells as text
     from auditor.load import read_table
 
@@ -222,10 +337,11 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
     table_bytes = tracemalloc.get_traced_memory()[0]
     tracemalloc.stop()
     del table
-    return {"seconds": seconds, "extra_peak": extra_peak, "worker_peak": worker_peak,
-            "table_bytes": table_bytes,
-            "baseline_per_outcome": t_baseline / len(chosen), "baseline_count": len(chosen),
-            "gap": gap, "file_bytes": os.path.getsize(path)}
+    return {"seconds": seconds, "default_seconds": default_seconds, "extra_peak": extra_peak,
+            "worker_peak": worker_peak, "table_bytes": table_bytes,
+            "baseline_per_outcome": t_baseline / len(picked), "baseline_count": len(picked),
+            "fragility_per_outcome": t_fragility / len(picked), "fragility_counts": counts,
+            "gap": gap, "interval_gap": interval_gap, "file_bytes": os.path.getsize(path)}
 
 
 # ------------------------------------------------------------------ report
@@ -250,6 +366,9 @@ def main(argv=None) -> int:
     parser.add_argument("--baseline-outcomes", type=int, default=None, metavar="K",
                         help="outcomes the baseline is timed on, then scaled (default 4, one of"
                              " each shape; 2 with --quick)")
+    parser.add_argument("--with-default", action="store_true",
+                        help="also time the screen under the default policy (analytic intervals,"
+                             " so no bootstrap), for information")
     args = parser.parse_args(argv)
     counts = args.outcomes_list or ([8, 16] if args.quick else [50, 100, 200])
     if args.full and 1000 not in counts:
@@ -263,7 +382,9 @@ def main(argv=None) -> int:
     print(f"machine: {os.cpu_count()} logical CPUs, load average {load:.1f} at the start (other"
           f" work on the machine slows --jobs most), numpy {np.__version__}; outcomes of 2x"
           f"{GROUP_SIZE} ({', '.join(SHAPES)}, in turn), B = {resamples}, --jobs {args.jobs};"
-          " ours is one run per N, each N in a fresh process")
+          " ours is one run per N, each N in a fresh process, under the default policy with"
+          " bootstrap (BCa) intervals, so that every interval in a row comes from the B"
+          " resamples")
     context = multiprocessing.get_context("spawn")
     runs = {}
     with tempfile.TemporaryDirectory() as folder:
@@ -276,12 +397,17 @@ def main(argv=None) -> int:
             # memory is this run's alone
             with ProcessPoolExecutor(max_workers=1, mp_context=context) as pool:
                 runs[n] = pool.submit(run_one_size, str(path), str(warmup), n, resamples,
-                                      args.jobs, baseline_count, repeats).result()
+                                      args.jobs, baseline_count, repeats,
+                                      args.with_default).result()
             path.unlink()
     for n in counts:
         r = runs[n]
         print(f"screen of {n} outcomes: {r['seconds']:.1f} s, {r['seconds'] / n:.3f} s per"
               f" outcome")
+    for n in counts:
+        if runs[n]["default_seconds"] is not None:
+            print(f"screen of {n} outcomes under the default policy (analytic intervals, no"
+                  f" bootstrap): {runs[n]['default_seconds']:.1f} s")
     for small, large in zip(counts, counts[1:]):
         growth = (runs[large]["seconds"] / runs[small]["seconds"]) / (large / small)
         print(f"time growth / outcome growth, {small} -> {large} outcomes: {growth:.2f}"
@@ -289,14 +415,22 @@ def main(argv=None) -> int:
     first = runs[counts[0]]
     print(f"baseline: plain loop over outcomes with scipy/pingouin, timed on the first"
           f" {first['baseline_count']} outcomes (best of {repeats}) in the process of each N;"
-          f" agrees with the screen's d and A to {max(r['gap'] for r in runs.values()):.0e}")
+          f" agrees with the screen's d, A and p to {max(r['gap'] for r in runs.values()):.0e},"
+          f" and its BCa limits (scipy.stats.bootstrap drawing the same resamples) with the"
+          f" screen's to {max(r['interval_gap'] for r in runs.values()):.0e}")
+    print("the baseline's fragility counts (a plain greedy search refitting the primary index"
+          " without each remaining value; one run) equal the screen's:"
+          f" {first['fragility_counts']} on the first N")
     for n in counts:
         r = runs[n]
-        baseline = r["baseline_per_outcome"] * n
+        lean = r["baseline_per_outcome"] * n
+        whole = (r["baseline_per_outcome"] + r["fragility_per_outcome"]) * n
         target = "; target >= 20x" if n == 1000 else ""
-        print(f"baseline / ours, {n} outcomes: {baseline / r['seconds']:.1f}x (baseline scaled"
-              f" from {r['baseline_count']} of {n} outcomes: {r['baseline_per_outcome']:.3f} s per"
-              f" outcome){target}")
+        print(f"baseline / ours, {n} outcomes: {whole / r['seconds']:.1f}x with every statistic of"
+              f" the row ({r['baseline_per_outcome'] + r['fragility_per_outcome']:.3f} s per"
+              f" outcome, scaled from {r['baseline_count']} of {n}){target}; without the"
+              f" fragility search {lean / r['seconds']:.1f}x ({r['baseline_per_outcome']:.3f} s"
+              f" per outcome)")
     for n in counts:
         r = runs[n]
         print(f"memory, {n} outcomes: extra peak {r['extra_peak'] / 2**20:.1f} MiB in the screening"
