@@ -1,12 +1,15 @@
 """Screen a whole data set: every numeric outcome audited against one grouping, one summary row
 per outcome.
 
-The file is read once. Each outcome is audited with the full pipeline (diagnostics, effects,
-intervals, influence, the policy's decision) under its own seed, derived from the user's seed and
-the outcome's name (SHA-256 of both), so adding or removing a column changes no other row, and a
-parallel run (`jobs` > 1, one process per job) gives exactly the rows of a serial one. A column
-that is mostly text is skipped with the reason; an outcome that cannot be audited (too few values,
-one group empty, ...) is a row with its reason, never a crash.
+Outcomes are audited in batches of columns (`batches`): each batch reads the file for its own
+columns only, so no process holds more than a batch of the data whatever the number of outcomes.
+Each outcome is audited in the pipeline's screen scope (everything its row shows, computed as the
+full audit computes it; `--reports` runs the full audit) under its own seed, derived from the
+user's seed and the outcome's name (SHA-256 of both), so adding or removing a column changes no
+other row, and a parallel run (`jobs` > 1, one process per job, batches handed out in turn) gives
+exactly the rows of a serial one. A column that is mostly text is skipped with the reason; an
+outcome that cannot be audited (too few values, one group empty, ...) is a row with its reason,
+never a crash.
 
 Across the outcomes that were audited, the p-values of each outcome's primary test are adjusted by
 Holm's step-down method (family-wise error) and by Benjamini-Hochberg (false discovery rate).
@@ -72,32 +75,35 @@ def _numeric_share(cells: tuple[str, ...]) -> tuple[float, str | None]:
     return 1.0 - len(bad) / len(filled), example
 
 
-def choose_outcomes(table: Table, group: str, subject: str | None, outcomes, exclude):
-    """(outcomes to audit, skipped columns with reasons). Named outcomes must exist; without
-    names, every column but the grouping, the subject and the excluded ones is a candidate, and
-    a column is skipped when fewer than half of its filled cells are numbers."""
+def candidate_columns(header, group: str, subject: str | None, outcomes, exclude):
+    """(columns to look at, columns skipped already, with reasons): the named outcomes, or every
+    column but the grouping, the subject and the excluded ones (listed as skipped)."""
     taken = {group} | ({subject} if subject else set())
     excluded = set(exclude or ())
-    named = list(outcomes) if outcomes else None
     skipped = []
-    if named is not None:
-        candidates = [c for c in named if c not in excluded]
+    if outcomes:
+        candidates = [c for c in outcomes if c not in excluded]
     else:
-        candidates = [c for c in table.header if c not in taken and c not in excluded]
-        skipped += [(c, "excluded with --exclude") for c in table.header if c in excluded]
-    chosen = []
+        candidates = [c for c in header if c not in taken and c not in excluded]
+        skipped += [(c, "excluded with --exclude") for c in header if c in excluded]
+    looked_at = []
     for column in candidates:
         if column in taken:
             skipped.append((column, "it is the grouping or subject column"))
-            continue
-        share, example = _numeric_share(table.columns[column])
-        if share < 0.5:
-            why = ("no values" if example is None and share == 0.0
-                   else f"mostly text (e.g. '{example[:30]}'), {share:.0%} numbers")
-            skipped.append((column, f"not numeric: {why}"))
         else:
-            chosen.append(column)
-    return chosen, skipped
+            looked_at.append(column)
+    return looked_at, skipped
+
+
+def not_numeric(cells) -> str | None:
+    """Why a column is not an outcome (fewer than half of its filled cells are numbers), or
+    None when it is one."""
+    share, example = _numeric_share(tuple(cells))
+    if share >= 0.5:
+        return None
+    why = ("no values" if example is None and share == 0.0
+           else f"mostly text (e.g. '{example[:30]}'), {share:.0%} numbers")
+    return f"not numeric: {why}"
 
 
 # ------------------------------------------------------------------ one outcome
@@ -151,7 +157,8 @@ def _failed_row(outcome: str, reason: str, seed: int, status: str = "not audited
 
 @dataclasses.dataclass(frozen=True)
 class _Job:
-    table: Table
+    table: Table | None  # the whole table (a data frame's), or None: each batch reads `path`
+    path: str | None
     group: str
     groups: tuple[str, ...] | None
     subject: str | None
@@ -171,19 +178,36 @@ def _init_worker(job: _Job) -> None:  # runs once in each worker process
     _WORKER_JOB = job
 
 
-def _audit_in_worker(outcome: str) -> dict:
-    return audit_one(_WORKER_JOB, outcome)
+def _batch_in_worker(names: list[str]) -> list:
+    return audit_batch(_WORKER_JOB, names)
 
 
-def audit_one(job: _Job, outcome: str) -> dict:
-    """Audit one outcome; a data problem becomes a row with its reason."""
+def audit_batch(job: _Job, names: list[str]) -> list[tuple[str, object]]:
+    """Audit a batch of columns: per column ("row", row) or ("skipped", reason). A file is read
+    for the batch's columns only, so that no process holds more than a batch of the data."""
+    table = job.table
+    if table is None:
+        fixed = [job.group] + ([job.subject] if job.subject else [])
+        table = read_table(job.path, fixed + [n for n in names if n not in fixed])
+    out = []
+    for name in names:
+        why = not_numeric(table.columns[name])
+        out.append(("skipped", why) if why else ("row", audit_one(job, name, table)))
+    return out
+
+
+def audit_one(job: _Job, outcome: str, table: Table | None = None) -> dict:
+    """Audit one outcome of `table` (default the job's); a data problem becomes a row with its
+    reason."""
     from auditor.pipeline import audit
+
+    table = job.table if table is None else table
 
     seed = outcome_seed(job.seed, outcome)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # every condition is reported in the result
-            result = audit(job.table, outcome=outcome, group=job.group,
+            result = audit(table, outcome=outcome, group=job.group,
                            groups=list(job.groups) if job.groups else None, subject=job.subject,
                            policy=job.policy, seed=seed, resamples=job.resamples, level=job.level,
                            scope="full" if job.report_folder else "screen")
@@ -228,18 +252,31 @@ def _report_names(outcomes) -> dict:
 # ------------------------------------------------------------------ the whole screen
 
 
-def _rows(job: _Job, outcomes: list[str], jobs: int) -> Iterator[dict]:
-    """Rows in the order of `outcomes`, serially or from `jobs` worker processes."""
-    if jobs <= 1 or len(outcomes) <= 1:
-        for outcome in outcomes:
-            yield audit_one(job, outcome)
+BATCH_OUTCOMES = 50  # columns audited per batch (each batch reads the file once) ...
+BATCH_CELLS = 2_000_000  # ... and at most about this many cells of text per batch
+
+
+def batches(columns: list[str], rows: int, jobs: int) -> list[list[str]]:
+    """`columns` in consecutive batches: at most BATCH_OUTCOMES columns or BATCH_CELLS cells, and
+    with several jobs at least four batches per job when there are enough columns."""
+    size = min(BATCH_OUTCOMES, max(1, BATCH_CELLS // max(rows, 1)))
+    if jobs > 1:
+        size = min(size, max(1, math.ceil(len(columns) / (4 * jobs))))
+    return [columns[i:i + size] for i in range(0, len(columns), size)]
+
+
+def _results(job: _Job, parts: list[list[str]], jobs: int) -> Iterator[list]:
+    """The results of each batch, in order, serially or from `jobs` worker processes."""
+    if jobs <= 1 or len(parts) <= 1:
+        for names in parts:
+            yield audit_batch(job, names)
         return
     import multiprocessing
 
     context = multiprocessing.get_context("spawn")
     with ProcessPoolExecutor(max_workers=jobs, mp_context=context, initializer=_init_worker,
                              initargs=(job,)) as pool:
-        yield from pool.map(_audit_in_worker, outcomes, chunksize=1)
+        yield from pool.map(_batch_in_worker, parts, chunksize=1)
 
 
 def holm(pvalues: list[float | None]) -> list[float | None]:
@@ -312,43 +349,54 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                     policy.value("bootstrap", "resamples") if resamples is None else resamples,
                     seed)
     seed = int(seed)
-    if isinstance(data, (str, os.PathLike)):
-        header = read_table(data, [group]).header
-        wanted = list(outcomes) if outcomes else [c for c in header if c not in (group, subject)]
-        table = read_table(data, [group] + ([subject] if subject else []) + wanted)
+    fixed = [group] + ([subject] if subject else [])
+    if isinstance(data, (str, os.PathLike)):  # read by batches; here the fixed columns only
+        table, source = None, str(data)
+        first = read_table(data, fixed)
+        header, name = first.header, first.path
+        wanted = list(outcomes) if outcomes else [c for c in header if c not in fixed]
+        _check_columns(header, wanted, first.path)
     else:
         data = data.rename(columns=str)  # the table holds column names as text
-        wanted = list(outcomes) if outcomes else [c for c in data.columns
-                                                  if c not in (group, subject)]
-        table = table_from_frame(data, [group] + ([subject] if subject else []) + wanted)
-    unknown = [c for c in (exclude or ()) if c not in table.header]
+        wanted = list(outcomes) if outcomes else [c for c in data.columns if c not in fixed]
+        first = table = table_from_frame(data, fixed + wanted)
+        header, name, source = table.header, table.path, None
+    unknown = [c for c in (exclude or ()) if c not in header]
     if unknown:
-        raise DesignError(f"--exclude names no column '{unknown[0]}' of {table.path}")
+        raise DesignError(f"--exclude names no column '{unknown[0]}' of {name}")
     if subject is None:  # the levels are checked once, not once per outcome
-        _choose_levels(_levels([x.strip() for x in table.columns[group]]),
-                       list(groups) if groups else None, table.path, group, "--groups")
-    chosen, skipped = choose_outcomes(table, group, subject, outcomes, exclude)
+        _choose_levels(_levels([x.strip() for x in first.columns[group]]),
+                       list(groups) if groups else None, name, group, "--groups")
+    looked_at, skipped = candidate_columns(header, group, subject, outcomes, exclude)
     report_folder = None
     if reports:
         if out is None:
             raise DesignError("--reports needs --out: the reports are written beside the screen")
         report_folder = str(Path(out) / "reports")
-    job = _Job(table, group, tuple(groups) if groups else None, subject, policy, seed, resamples,
-               level, report_folder, _report_names(chosen) if reports else None)
+    job = _Job(table, source, group, tuple(groups) if groups else None, subject, policy, seed,
+               resamples, level, report_folder, _report_names(looked_at) if reports else None)
     spool = io.StringIO() if out is None else None
     if out is not None:
         Path(out).mkdir(parents=True, exist_ok=True)
         spool_path = Path(out) / "screen.rows.jsonl"
         spool = spool_path.open("w+", encoding="utf-8")
     keys, pvalues, offsets = [], [], []
+    parts = batches(looked_at, first.n_rows, jobs)
     try:
-        for i, row in enumerate(_rows(job, chosen, jobs)):
-            offsets.append(spool.tell())
-            spool.write(json.dumps(row, allow_nan=False, default=_plain_number) + "\n")
-            keys.append(_sort_value(row, sort if sort not in ("p_holm",) else "p", i))
-            pvalues.append(row.get("p"))
-            if progress is not None:
-                progress(i + 1, len(chosen), row["outcome"])
+        done = 0
+        for names, results in zip(parts, _results(job, parts, jobs)):
+            for column, (kind, found) in zip(names, results):
+                done += 1
+                if kind == "skipped":
+                    skipped.append((column, found))
+                else:
+                    i = len(offsets)
+                    offsets.append(spool.tell())
+                    spool.write(json.dumps(found, allow_nan=False, default=_plain_number) + "\n")
+                    keys.append(_sort_value(found, sort if sort not in ("p_holm",) else "p", i))
+                    pvalues.append(found.get("p"))
+                if progress is not None:
+                    progress(done, len(looked_at), column)
         adjusted = (holm(pvalues), benjamini_hochberg(pvalues))
         order = sorted(range(len(offsets)), key=lambda i: (keys[i], i))
 
@@ -370,6 +418,18 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                 spool_path.unlink()
             except OSError:
                 pass
+
+
+def _check_columns(header: tuple[str, ...], names: list[str], path: str) -> None:
+    """Every name is exactly one column of the header, else the loader's one-line error."""
+    from collections import Counter
+
+    from auditor.load import column_position
+
+    counts = Counter(header)
+    for name in names:
+        if counts.get(name, 0) != 1:
+            column_position(header, name, Path(path))
 
 
 def _plain_number(value):

@@ -726,3 +726,74 @@ def test_an_unknown_scope_is_refused():
     name, frame, args = _scope_frames()[0]
     with pytest.raises(DesignError, match="scope 'quick'"):
         audit(frame, scope="quick", **args)
+
+
+@pytest.mark.slow
+def test_a_thousand_column_file_is_screened_into_the_three_outputs(run_cli, write_file, tmp_path,
+                                                                   strict_json):
+    """1,000 outcome columns (four shapes in turn) of two groups of 12, two worker processes."""
+    rng = np.random.default_rng(1000)
+    n, width = 12, 1000
+    names = [f"m{j:04d}" for j in range(width)]
+    shapes = [rng.normal(0.5, 1, (2 * n, width)), rng.lognormal(0, 1, (2 * n, width)),
+              np.round(rng.uniform(1, 7, (2 * n, width))), rng.normal(0, 1, (2 * n, width))]
+    cells = np.where(np.arange(width) % 4 == 0, shapes[0],
+                     np.where(np.arange(width) % 4 == 1, shapes[1],
+                              np.where(np.arange(width) % 4 == 2, shapes[2], shapes[3])))
+    rows = [[("A" if i < n else "B")] + [f"{v:.3f}" for v in cells[i]] for i in range(2 * n)]
+    path = write_file("wide.csv", _csv_text(["g", *names], rows))
+    out = tmp_path / "wide"
+    _screen(run_cli, path, out, "--jobs", "2")
+    assert {p.name for p in out.iterdir()} == {"screen.csv", "screen.json", "screen.html"}
+    document = _document(out, strict_json)
+    assert [r["outcome"] for r in document["rows"]] == names
+    assert all(r["status"] == "audited" for r in document["rows"])
+    assert [r["outcome"] for r in _rows_csv(out)] == names
+    page = (out / "screen.html").read_text(encoding="utf-8")
+    assert all(f">{name}<" in page for name in names[:: 97])
+
+
+# ------------------------------------------------------------------ batches
+
+
+def test_batches_are_bounded_in_columns_and_cells_and_feed_every_job():
+    from auditor.screen import BATCH_CELLS, BATCH_OUTCOMES, batches
+
+    names = [f"c{i}" for i in range(1000)]
+    serial = batches(names, 400, 1)
+    assert [n for part in serial for n in part] == names
+    assert max(len(p) for p in serial) == BATCH_OUTCOMES
+    tall = batches(names, BATCH_CELLS // 3, 1)  # a tall file: three columns' cells per batch
+    assert max(len(p) for p in tall) == 3
+    assert max(len(p) for p in batches(names, 10 * BATCH_CELLS, 1)) == 1
+    few = batches(names[:24], 400, 2)
+    assert len(few) >= 8 and [n for part in few for n in part] == names[:24]
+    assert batches([], 400, 2) == []
+
+
+def test_small_batches_give_the_rows_and_skips_of_one_batch(run_cli, write_file, tmp_path,
+                                                            strict_json, monkeypatch):
+    import auditor.screen as screen_module
+
+    columns = dict(SORT_COLUMNS)
+    columns["words"] = lambda k, i, rng: "some text"
+    columns["later"] = _normal(0.3)
+    path = write_file("mixed.csv", _csv_text(*_two_groups(columns)))
+    _screen(run_cli, path, tmp_path / "one")
+    asked = []
+    real_read = screen_module.read_table
+
+    def recording_read(source, names):
+        asked.append(list(names))
+        return real_read(source, names)
+
+    monkeypatch.setattr(screen_module, "BATCH_OUTCOMES", 2)
+    monkeypatch.setattr(screen_module, "read_table", recording_read)
+    _screen(run_cli, path, tmp_path / "twos")
+    assert (tmp_path / "one" / "screen.json").read_bytes() == \
+        (tmp_path / "twos" / "screen.json").read_bytes()
+    skipped = _document(tmp_path / "twos", strict_json)["skipped"]
+    assert [(s["column"], s["reason"][:11]) for s in skipped] == [("words", "not numeric")]
+    # the file is read for the grouping first, then for two outcome columns at a time
+    assert asked[0] == ["g"] and all(len(a) <= 3 and a[0] == "g" for a in asked[1:])
+    assert [n for a in asked[1:] for n in a[1:]] == list(columns)

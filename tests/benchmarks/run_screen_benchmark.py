@@ -15,26 +15,30 @@ columns cycling through four shapes: normal with a shift, lognormal, integer rat
 with one extreme value. Column j is drawn from its own seeded stream, so the first columns are the
 same at every N.
 
+The screen runs under the default policy with `intervals.method = "bootstrap"`, so that every
+interval of a row is a BCa interval over the B resamples (under the default policy's analytic
+intervals a two-group row needs no bootstrap; `--with-default` times that too, for information).
+
 Each N runs in a fresh process (started with 'spawn') that:
 1. imports the package and screens a tiny file once (lazy imports), then notes its resident memory;
 2. screens the file with `auditor.screen.run_screen(..., jobs=J, out=...)` (ours; one run per N,
    worker processes included) and takes its peak resident memory (ru_maxrss) minus the memory of
    step 1, and the largest peak of its worker processes;
 3. times the baseline in the same process on the same data: a plain Python loop over the first
-   few outcomes (one of each shape), best of two, scaled to N (marked 'scaled'). Per outcome:
-   Shapiro-Wilk per group, skewness and excess kurtosis, Levene's test, Cohen's d and Hedges' g
-   (pingouin.compute_effsize) with BCa intervals from scipy.stats.bootstrap, A (Mann-Whitney U /
-   n_A n_B) and Cliff's delta with BCa intervals from scipy.stats.bootstrap, the Hodges-Lehmann
-   shift (median of all pairwise differences), leave-one-out of d and A by refitting after each
-   removal, Student's t test and the Brunner-Munzel test. Its d and A are checked against the
-   screen's rows. The screen computes more per outcome than this baseline (every index of the
-   design with analytic and BCa intervals, leave-one-out influence and fragility searches for each
-   index, the policy's decision), so the baseline is the smaller job of the two.
+   few outcomes (one of each shape), scaled to N. Per outcome it computes the statistics of the
+   screen's row with scipy and pingouin: Shapiro-Wilk, skewness and excess kurtosis per group,
+   Levene's test; Cohen's d (pingouin.compute_effsize), A (Mann-Whitney U / n_A n_B) and the
+   row's primary index, each with a BCa interval from scipy.stats.bootstrap (drawing the very
+   resamples the screen draws: the limits must agree with the row's); the p of the row's test;
+   leave-one-out values of d and of the primary index by refitting after each removal (best of
+   two); and the primary index's fragility count by a plain greedy search that refits the index
+   without each remaining value at every step (one run; the counts must equal the row's).
+   The ratio is printed with and without that search, which dominates the plain loop.
 
 Printed: seconds per outcome at each N; the growth of time over the growth of N between sizes
 (1.0 is linear; the fixed cost of starting the workers pulls it below 1 at small N); "baseline /
-ours" at each N; and memory in MiB, beside the size of the input file held as text cells (the
-screen keeps the whole table in memory, and each worker receives a copy of it).
+ours" at each N; and memory in MiB, beside the size the whole input would take held as text cells
+(the screen reads the file by batches of columns and holds one batch at a time).
 """
 
 from __future__ import annotations
@@ -434,10 +438,11 @@ def main(argv=None) -> int:
     for n in counts:
         r = runs[n]
         print(f"memory, {n} outcomes: extra peak {r['extra_peak'] / 2**20:.1f} MiB in the screening"
-              f" process (peak RSS minus RSS after imports and a warm-up screen); the input held"
-              f" as text cells takes {r['table_bytes'] / 2**20:.1f} MiB (tracemalloc; the"
-              f" file is {r['file_bytes'] / 2**20:.1f} MiB); largest worker's peak RSS"
-              f" {r['worker_peak'] / 2**20:.0f} MiB (imports and a copy of the input included)")
+              f" process (peak RSS minus RSS after imports and a warm-up screen); largest worker's"
+              f" peak RSS {r['worker_peak'] / 2**20:.0f} MiB (imports included); for scale, the"
+              f" whole input held as text cells would take {r['table_bytes'] / 2**20:.1f} MiB"
+              f" (tracemalloc; the file is {r['file_bytes'] / 2**20:.1f} MiB), where the screen"
+              f" holds one batch of columns at a time")
     return 0
 
 
