@@ -7,6 +7,7 @@ left out and why. Line numbers count the header as line 1; for a workbook they a
 
 from __future__ import annotations
 
+import codecs
 import csv
 import difflib
 import io
@@ -52,10 +53,14 @@ def read_table(path: str | os.PathLike, columns: list[str]) -> Table:
         header, rows, lines, blank = _read_workbook(p)
         encoding, delimiter = "xlsx", None
     else:
-        text, encoding = _decode(p)
-        delimiter = _detect_delimiter(text, p)
-        header, rows, lines, blank = _read_text(text, delimiter, p, columns)
-        del text
+        codec, encoding = _detect_encoding(p)
+        try:
+            with p.open("r", encoding=codec, newline="") as stream:
+                delimiter = _detect_delimiter(stream.read(SAMPLE_CHARS), p)
+                stream.seek(0)
+                header, rows, lines, blank = _read_text(stream, delimiter, p, columns)
+        except OSError as exc:
+            raise InputFileError(f"{p}: cannot be read ({exc.strerror or exc})") from None
     if not header or all(not h.strip() for h in header):
         raise InputFileError(f"{p}: the file is empty or has no header line")
     header = tuple(h.strip() for h in header)
@@ -149,29 +154,56 @@ def _check_path(p: Path) -> None:
         raise InputFileError(f"{p}: cannot be read (permission denied)")
 
 
-def _decode(p: Path) -> tuple[str, str]:
+SAMPLE_CHARS = 65536  # text the delimiter is detected from
+_CHUNK_BYTES = 1 << 20
+
+
+def _detect_encoding(p: Path) -> tuple[str, str]:
+    """(codec to read the file with, its name for the report), found by one pass over the bytes
+    in chunks, so the file is never held in memory whole: UTF-16 when it starts with a UTF-16 byte
+    order mark (spreadsheets' "Unicode text"), else UTF-8 (a byte order mark is skipped) when every
+    byte decodes as UTF-8, else Windows-1252 when bytes 0x80-0x9F occur and all of them are defined
+    there (curly quotes and dashes), else Latin-1 (which agrees with Windows-1252 elsewhere)."""
+    c1 = re.compile(rb"[\x80-\x9f]")
+    undefined_in_cp1252 = re.compile(rb"[\x81\x8d\x8f\x90\x9d]")
     try:
-        raw = p.read_bytes()
+        with p.open("rb") as f:
+            head = f.read(4096)
+            utf16 = head[:2] in (b"\xff\xfe", b"\xfe\xff")
+            if not utf16 and b"\x00" in head:
+                raise InputFileError(f"{p}: looks like a binary file, not a CSV/TSV text or .xlsx"
+                                     " workbook")
+            decoder = codecs.getincrementaldecoder("utf-16" if utf16 else "utf-8-sig")()
+            valid, has_c1, cp1252_ok = True, False, True
+            f.seek(0)
+            for chunk in iter(lambda: f.read(_CHUNK_BYTES), b""):
+                if valid:
+                    try:
+                        decoder.decode(chunk)
+                    except UnicodeDecodeError:
+                        valid = False
+                if not utf16:
+                    has_c1 = has_c1 or c1.search(chunk) is not None
+                    cp1252_ok = cp1252_ok and undefined_in_cp1252.search(chunk) is None
+                if utf16 and not valid:
+                    break
+            if valid:
+                try:
+                    decoder.decode(b"", final=True)
+                except UnicodeDecodeError:
+                    valid = False
     except OSError as exc:
         raise InputFileError(f"{p}: cannot be read ({exc.strerror or exc})") from None
-    if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):  # spreadsheets' "Unicode text" export
-        try:
-            return raw.decode("utf-16"), "utf-16"
-        except UnicodeDecodeError:
+    if utf16:
+        if not valid:
             raise InputFileError(f"{p}: starts like UTF-16 text but does not decode as it;"
-                                 " save the file as UTF-8") from None
-    if b"\x00" in raw[:4096]:
-        raise InputFileError(f"{p}: looks like a binary file, not a CSV/TSV text or .xlsx workbook")
-    try:
-        return raw.decode("utf-8-sig"), "utf-8"
-    except UnicodeDecodeError:
-        pass
-    if re.search(rb"[\x80-\x9f]", raw) is None:  # Latin-1 and Windows-1252 agree on the rest
-        return raw.decode("latin-1"), "latin-1"
-    try:  # Windows' Western code page: curly quotes and dashes where Latin-1 has controls
-        return raw.decode("cp1252"), "cp1252"
-    except UnicodeDecodeError:
-        return raw.decode("latin-1"), "latin-1"
+                                 " save the file as UTF-8")
+        return "utf-16", "utf-16"
+    if valid:
+        return "utf-8-sig", "utf-8"
+    if has_c1 and cp1252_ok:
+        return "cp1252", "cp1252"
+    return "latin-1", "latin-1"
 
 
 def _detect_delimiter(text: str, p: Path) -> str:
@@ -191,11 +223,13 @@ def _detect_delimiter(text: str, p: Path) -> str:
     return best
 
 
-def _read_text(text: str, delimiter: str, p: Path, columns: list[str] | None = None):
-    """Header, rows, their first lines and the number of blank lines. With `columns`, each row
-    keeps only the cells of those columns (in that order) followed by the row's field count, so a
-    wide file costs memory for the columns asked for only."""
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+def _read_text(text, delimiter: str, p: Path, columns: list[str] | None = None):
+    """Header, rows, their first lines and the number of blank lines of `text` (a string, or a
+    text stream opened with newline=""). With `columns`, each row keeps only the cells of those
+    columns (in that order) followed by the row's field count, so a wide file costs memory for
+    the columns asked for only."""
+    stream = io.StringIO(text, newline="") if isinstance(text, str) else text
+    reader = csv.reader(stream, delimiter=delimiter, strict=True)
     header: list[str] = []
     rows: list[list[str]] = []
     lines: list[int] = []

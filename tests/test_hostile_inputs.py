@@ -15,9 +15,9 @@ used), the command-line options, and what must happen:
 Cases where the tool does not yet behave as described keep the correct expectation and are marked
 `xfail(strict=True)` with the reason, so that fixing the code turns them into failures to unmark.
 
-Two scale checks follow the catalogue: a file of 10^6 rows (marked slow) and a wide file of 200
-columns. The wide file is about 20 MB; the issue asks for 200 MB, which is too slow for the test
-suite, so the check is scaled down and bounds memory relative to the file's size instead.
+Two scale checks follow the catalogue: a file of 10^6 rows (marked slow) and a wide file of about
+200 MB (17,000 rows of 2,000 columns), of which one outcome is audited: the file is read as a
+stream, keeping only the columns asked for, so the memory used stays below the file's size.
 """
 
 from __future__ import annotations
@@ -658,19 +658,25 @@ def test_million_rows_memory_stays_bounded(million_run):
     assert extra_mib < 2048, million_run
 
 
-WIDE_ROWS, WIDE_COLUMNS = 17_000, 200  # about 20 MB; the issue's 200 MB is scaled down tenfold
+WIDE_ROWS, WIDE_COLUMNS = 17_000, 2_000  # about 200 MB
+WIDE_DISTINCT = 400  # distinct row bodies, repeated (writing stays fast; reading is the check)
 WIDE_BAD = [100, 5_000, 16_999]  # data rows whose outcome cell is 'NA'
+WIDE_OUTCOME = "v0150"
 
 
 def _write_wide(path: Path) -> Path:
     rng = np.random.default_rng(11)
-    cells = np.char.mod("%.2f", np.round(rng.normal(50.0, 10.0, (WIDE_ROWS, WIDE_COLUMNS - 1)),
-                                         2)).astype(object)
-    cells[WIDE_BAD, 149] = "NA"  # column v150, the outcome
-    labels = np.where(np.arange(WIDE_ROWS) % 2 == 0, "A", "B")
-    header = "g," + ",".join(f"v{i:03d}" for i in range(1, WIDE_COLUMNS))
-    lines = (f"{g}," + ",".join(row) for g, row in zip(labels, cells.tolist()))
-    path.write_text(header + "\n" + "\n".join(lines) + "\n", encoding="utf-8")
+    cells = np.char.mod("%.2f", np.round(rng.normal(50.0, 10.0, (WIDE_DISTINCT,
+                                                                 WIDE_COLUMNS - 1)), 2))
+    bodies = cells.tolist()
+    header = "g," + ",".join(f"v{i:04d}" for i in range(1, WIDE_COLUMNS))
+    with path.open("w", encoding="utf-8") as f:
+        f.write(header + "\n")
+        for k in range(WIDE_ROWS):
+            body = list(bodies[k % WIDE_DISTINCT])
+            if k in WIDE_BAD:
+                body[149] = "NA"  # column v0150, the outcome
+            f.write(("A," if k % 2 == 0 else "B,") + ",".join(body) + "\n")
     return path
 
 
@@ -679,7 +685,7 @@ def wide_run(tmp_path_factory):
     folder = tmp_path_factory.mktemp("wide")
     path = _write_wide(folder / "wide.csv")
     out = folder / "wide.json"
-    result = _probe(["check", path, "--outcome", "v150", "--group", "g", "--boot", "200",
+    result = _probe(["check", path, "--outcome", WIDE_OUTCOME, "--group", "g", "--boot", "200",
                      "--json", out, "--quiet"], timeout=300)
     result["file_mib"] = path.stat().st_size / 2**20
     if result["code"] == 0:
@@ -687,16 +693,20 @@ def wide_run(tmp_path_factory):
     return result
 
 
+@pytest.mark.slow
 def test_wide_file_is_read_and_accounted_for(wide_run):
     assert wide_run["code"] == 0, wide_run["stderr"]
-    assert 15 < wide_run["file_mib"] < 30
+    assert 150 < wide_run["file_mib"] < 250
     data = wide_run["data"]
     assert data["rows_read"] == WIDE_ROWS
     assert data["rows_used"] == WIDE_ROWS - len(WIDE_BAD)
     assert [e["row"] for e in data["excluded"]] == [k + 2 for k in WIDE_BAD]
 
 
-def test_wide_file_memory_stays_within_ten_times_its_size(wide_run):
+@pytest.mark.slow
+def test_wide_file_memory_stays_below_its_size(wide_run):
+    # holding the decoded text alone would take the file's size, its cells several times more;
+    # measured: about 150 MiB for the audit of the outcome, the same as for a file a tenth as wide
     assert wide_run["code"] == 0, wide_run["stderr"]
     extra_mib = (wide_run["peak_kib"] - wide_run["base_kib"]) / 1024
-    assert extra_mib < 10 * wide_run["file_mib"], (extra_mib, wide_run["file_mib"])
+    assert extra_mib < 0.9 * wide_run["file_mib"], (extra_mib, wide_run["file_mib"])

@@ -121,6 +121,42 @@ def test_latin1_text(audit_json, write_file):
     assert excluded(doc) == {10: "hauteur 'n°9' is not a number"}
 
 
+def _long_plants(size: int) -> bytes:
+    """The plant table with a filler column, repeated until it is `size` bytes or longer."""
+    filler = "x" * 200
+    rows = [(s, h, filler) for s, h in PLANTS] * (size // (8 * 200) + 2)
+    return table(rows, header=("soil", "height_cm", "note")).encode("ascii")
+
+
+@pytest.mark.parametrize("shift", range(3))
+def test_utf8_character_split_by_the_reading_chunk_is_still_utf8(tmp_path, shift):
+    from auditor.load import _CHUNK_BYTES, read_table
+
+    raw = _long_plants(_CHUNK_BYTES + 1000)
+    assert raw[_CHUNK_BYTES - 3:_CHUNK_BYTES + 3] == b"x" * 6  # inside a filler cell
+    at = _CHUNK_BYTES - 2 + shift  # the three bytes of a euro sign straddle the boundary
+    raw = raw[:at] + "\u20ac".encode("utf-8") + raw[at + 3:]
+    (tmp_path / "plants.csv").write_bytes(raw)
+    found = read_table(tmp_path / "plants.csv", ["soil", "note"])
+    assert found.encoding == "utf-8"
+    assert sum("\u20ac" in cell for cell in found.columns["note"]) == 1
+
+
+def test_windows_1252_byte_after_the_first_chunk_is_found(tmp_path):
+    from auditor.load import _CHUNK_BYTES, read_table
+
+    raw = _long_plants(2 * _CHUNK_BYTES)
+    at = raw.index(b"xxx", _CHUNK_BYTES + 100)
+    raw = raw[:at] + "\u2013".encode("cp1252") + raw[at + 1:]  # an en dash, byte 0x96
+    (tmp_path / "plants.csv").write_bytes(raw)
+    found = read_table(tmp_path / "plants.csv", ["soil", "note"])
+    assert found.encoding == "cp1252"
+    assert sum("\u2013" in cell for cell in found.columns["note"]) == 1
+    undefined = raw[:at] + b"\x81" + raw[at + 1:]  # not a Windows-1252 character: Latin-1
+    (tmp_path / "plants.csv").write_bytes(undefined)
+    assert read_table(tmp_path / "plants.csv", ["soil"]).encoding == "latin-1"
+
+
 @pytest.mark.parametrize("newline", ["\n", "\r\n"], ids=["lf", "crlf"])
 def test_quoted_field_with_embedded_newline(audit_json, write_file, newline):
     nl = newline
