@@ -10,9 +10,8 @@ import warnings
 from collections.abc import Callable
 
 import numpy as np
-from scipy import stats
 
-from auditor import __version__, diagnostics, kgroups, paired, rationale
+from auditor import __version__, diagnostics, kgroups, paired, rationale, significance
 from auditor.decide import MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows
 from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
                             parse_group_list, wide_repeated)
@@ -370,8 +369,8 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
         diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
                                          design.rows, digits, paired.sign_test(d),
                                          brief=scope == "screen")
-        tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(d),
-                 "paired_t": _paired_t(x[:, 0], x[:, 1])}
+        tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(x, digits),
+                 "paired_t": _paired_t(x, digits)}
         units = _participant_units(design, d)
         result = _result("paired", outcome, design.group_column,
                          _summaries(labels, columns, design.missing),
@@ -395,7 +394,7 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
             sub = x[:, [i, j]]
             pair_effects, pair_notes, _ = estimate_all(paired_effects(digits), (sub,), level,
                                                        resamples, rng, None)
-            w = _wilcoxon(paired.differences(sub, digits))
+            w = _wilcoxon(sub, digits)
             wil_p.append(w["p"])
             comparisons.append((i, j, pair_effects, w["statistic"]))
             notes += [f"{labels[i]} vs {labels[j]}: {n}" for n in pair_notes]
@@ -417,25 +416,23 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
 
-def _wilcoxon(d: np.ndarray) -> dict:
-    """Wilcoxon signed-rank test on rounded differences, zeros dropped (scipy.stats.wilcoxon with
-    its default method choice: exact or permutation for small samples, otherwise the normal
-    approximation)."""
-    if np.all(d == 0):
-        return {"statistic": None, "p": None, "reason": "every difference is zero"}
-    with warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore")
-        res = stats.wilcoxon(d, zero_method="wilcox")
-    return {"statistic": float(res.statistic), "p": float(res.pvalue)}
+def _wilcoxon(x: np.ndarray, digits: int) -> dict:
+    """The Wilcoxon signed-rank test of the pairs x (n x 2) exactly as a policy's decision runs
+    it (`significance.wilcoxon_signed_rank`): T+ of the differences rounded to `digits` places,
+    zeros dropped, exact p up to 50 non-zero differences. One definition for the tests block, the
+    pairwise follow-ups and the decision."""
+    res = significance.wilcoxon_signed_rank(x, digits=digits)
+    out = {"statistic": res.statistic, "statistic_name": res.statistic_name, "p": res.p,
+           "method": res.method}
+    return out if res.reason is None else {**out, "reason": res.reason}
 
 
-def _paired_t(a: np.ndarray, b: np.ndarray) -> dict:
-    with warnings.catch_warnings(), np.errstate(all="ignore"):
-        warnings.simplefilter("ignore")
-        res = stats.ttest_rel(a, b)
-    t, p = float(res.statistic), float(res.pvalue)
-    return {"statistic": t if np.isfinite(t) else None, "df": a.size - 1,
-            "p": p if np.isfinite(p) else None}
+def _paired_t(x: np.ndarray, digits: int) -> dict:
+    """The paired t test as a policy's decision runs it (`significance.paired_t`, on the
+    differences rounded to `digits` places): undefined, with the reason, when they do not vary."""
+    res = significance.paired_t(x, digits=digits)
+    out = {"statistic": res.statistic, "df": None if res.df is None else int(res.df), "p": res.p}
+    return out if res.reason is None else {**out, "reason": res.reason}
 
 
 # ------------------------------------------------------------------ estimation

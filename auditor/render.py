@@ -88,8 +88,8 @@ def terminal_summary(result: AuditResult) -> str:
                        else f", df {df}")
             extra = ("" if "p_greenhouse_geisser" not in t else
                      f" (Greenhouse-Geisser p {pval(t['p_greenhouse_geisser'])})")
-            out.append(f"  {name.replace('_', ' ')}: statistic {num(t.get('statistic'))}"
-                       f"{df_text}, p {pval(t.get('p'))}{extra}")
+            out.append(f"  {name.replace('_', ' ')}: {t.get('statistic_name', 'statistic')}"
+                       f" {num(t.get('statistic'))}{df_text}, p {pval(t.get('p'))}{extra}")
         out.append("")
     if result.pairwise:
         first, second = _PAIR_COLUMNS[result.design]

@@ -332,17 +332,50 @@ def paired_t(x, *, digits: int = 12) -> TestResult:
                 details={"n": int(d.size), "mean_difference": float(np.mean(d))})
 
 
+def signed_rank_exact_p(nonzero) -> float:
+    """Two-sided exact p of the signed-rank sum T+ of the non-zero differences `nonzero`, given
+    their mid-ranks r_i of |d|: under the null hypothesis every difference is positive or negative
+    with probability 1/2 independently, so each of the 2^N sign patterns has probability 2^-N, and
+    p = min(1, 2 min(P(T+ <= t), P(T+ >= t))) at the observed t.
+
+    Mid-ranks are multiples of 1/2, so 2 T+ is a whole number; its distribution is the generating
+    function prod_i (1 + q^(2 r_i)) / 2, expanded one difference at a time (the shift algorithm of
+    Streitberg & Roehmel 1986). Without ties this is Wilcoxon's exact null distribution
+    (`paired.signed_rank_null_pmf`); with ties it is the permutation distribution conditional on
+    the tied mid-ranks, which scipy.stats.wilcoxon(method=PermutationMethod()) computes by
+    listing the patterns. Every probability is a count over 2^N: exact in double precision for
+    N <= 50.
+    """
+    nonzero = np.asarray(nonzero, dtype=float)
+    doubled = np.rint(2.0 * ranks.midranks(np.abs(nonzero))).astype(np.int64)
+    observed = int(np.sum(doubled[nonzero > 0]))
+    size = int(np.sum(doubled)) + 1
+    pmf = np.zeros(size)
+    pmf[0] = 1.0
+    for step in doubled:
+        shifted = np.zeros(size)
+        shifted[step:] = pmf[:size - step]
+        pmf = (pmf + shifted) / 2.0
+    lower, upper = float(np.sum(pmf[:observed + 1])), float(np.sum(pmf[observed:]))
+    return min(1.0, 2.0 * min(lower, upper))
+
+
 def wilcoxon_signed_rank(x, *, digits: int = 12) -> TestResult:
     """Wilcoxon signed-rank test on the rounded differences: T+ = sum of the mid-ranks of |d| over
     the positive differences, zero differences dropped (Wilcoxon 1945; zeros as in Wilcoxon's
     method, scipy's zero_method='wilcox').
 
-    Exact null distribution (`paired.signed_rank_null_pmf`) when no two non-zero |d| tie and at
-    most 50 remain; otherwise the normal approximation with the tie-corrected variance and no
-    continuity correction, the z of `paired.wilcoxon_z_values`, which the signed-rank effect
-    sizes use. Assumes independent participants and differences symmetric about their centre
-    under the null hypothesis. scipy and pingouin report min(T+, T-) as the statistic; T+ keeps
-    the direction (large when the first condition tends to be larger).
+    Exact p (`signed_rank_exact_p`) when at most 50 differences are non-zero: Wilcoxon's null
+    distribution without ties, the distribution over all sign patterns of the tied mid-ranks with
+    them. Beyond 50, the normal approximation with the tie-corrected variance and no continuity
+    correction, the z of `paired.wilcoxon_z_values`, which the signed-rank effect sizes use.
+    Assumes independent participants and differences symmetric about their centre under the null
+    hypothesis. scipy and pingouin report min(T+, T-) as the statistic; T+ keeps the direction
+    (large when the first condition tends to be larger), as R's wilcox.test V does.
+
+    This is the tool's one signed-rank test: the audit's tests block and the pairwise follow-ups
+    of k repeated conditions report it too. scipy's default method choice differs only in where
+    it stops being exact (with ties or zeros, beyond 13 differences in all).
     """
     make = partial(_outcome, "wilcoxon", "Wilcoxon signed-rank test", "ranks", "T+")
     x = _matrix(x, 2, "paired data x")
@@ -361,21 +394,22 @@ def wilcoxon_signed_rank(x, *, digits: int = 12) -> TestResult:
     notes = []
     if details["n_zero"]:
         notes.append("zero differences dropped before ranking (Wilcoxon's method)")
-    if tie_term == 0 and n_used <= paired.EXACT_MAX_N:
-        pmf = paired.signed_rank_null_pmf(n_used)
-        t = int(round(r_plus))
-        p = min(1.0, 2.0 * min(float(np.sum(pmf[:t + 1])), float(np.sum(pmf[t:]))))
-        method = (f"exact null distribution (no ties, at most {paired.EXACT_MAX_N} non-zero"
-                  " differences)")
+    if n_used <= paired.EXACT_MAX_N:
+        p = signed_rank_exact_p(d[d != 0])
+        if tie_term == 0:
+            method = (f"exact null distribution (no ties, at most {paired.EXACT_MAX_N} non-zero"
+                      " differences)")
+        else:
+            method = (f"exact null distribution given the tied mid-ranks (all sign patterns, at"
+                      f" most {paired.EXACT_MAX_N} non-zero differences)")
+            notes.append("tied non-zero differences: the exact p is conditional on their"
+                         " mid-ranks")
     else:
         with np.errstate(all="ignore"):
             z = float(paired.wilcoxon_z_values(x, digits))
         details["z"] = z
         p = float(2.0 * stats.norm.sf(abs(z)))
         method = "normal approximation with tie correction, no continuity correction"
-        if tie_term > 0:
-            notes.append("tied non-zero differences: exact p is not available, the normal"
-                         " approximation is used")
     return make(method, statistic=r_plus, p=p, notes=notes, details=details)
 
 

@@ -607,11 +607,17 @@ def test_audit_end_to_end_paired_wide():
     pos, neg = int(np.sum(d > 0)), int(np.sum(d < 0))
     assert tests["sign_test"]["p"] == pytest.approx(stats.binomtest(pos, pos + neg).pvalue,
                                                     rel=1e-12)  # scipy
-    # Ties among the rounded differences and n <= 13: scipy's default is the exact permutation
-    # distribution; an enumeration of all 2^11 sign patterns gives the same p.
+    # Ties among the rounded differences: the exact p over the sign patterns of the tied
+    # mid-ranks; an enumeration of all 2^11 patterns, and scipy.stats.wilcoxon listing them
+    # (explicit PermutationMethod: 2^11 patterns, fewer than its 9999 resamples), give the same p.
+    # The statistic is T+, the sum of the mid-ranks of the positive differences (scipy's is
+    # min(T+, T-)), as the policy's decision reports it.
     assert tests["wilcoxon"]["p"] == pytest.approx(_enumerated_signed_rank_p(d), rel=1e-9)
+    assert tests["wilcoxon"]["p"] == pytest.approx(
+        stats.wilcoxon(d, zero_method="wilcox", method=stats.PermutationMethod()).pvalue,
+        rel=1e-9)
     assert tests["wilcoxon"]["statistic"] == pytest.approx(
-        min(np.sum(stats.rankdata(np.abs(d))[d > 0]), np.sum(stats.rankdata(np.abs(d))[d < 0])))
+        np.sum(stats.rankdata(np.abs(d))[d > 0]), rel=1e-12)
     assert result.diagnostics.correlation == pytest.approx(stats.pearsonr(a, b).statistic,
                                                            rel=1e-12)  # scipy
 

@@ -452,6 +452,25 @@ def _enumerated_signed_rank_p(d):
     return min(1.0, 2 * min(np.mean(sums <= obs + 1e-9), np.mean(sums >= obs - 1e-9)))
 
 
+def _signed_rank_p_by_halves(d):
+    """Two-sided signed-rank p counted over all 2^N sign patterns of the doubled mid-ranks of the
+    non-zero |d|, in two halves: every pattern joins a pattern of the first half (sum s) with one
+    of the second, so #(2 T+ <= t) = sum over s of #(second-half sums <= t - s). Whole-number
+    counts, found by sorting and searching; nothing shared with the module's recursion."""
+    d = d[d != 0]
+    doubled = np.rint(2 * stats.rankdata(np.abs(d))).astype(np.int64)
+    obs = int(doubled[d > 0].sum())
+
+    def subset_sums(r):
+        bits = (np.arange(2 ** r.size)[:, None] >> np.arange(r.size)) & 1
+        return np.sort(bits @ r)
+
+    first, second = subset_sums(doubled[:d.size // 2]), subset_sums(doubled[d.size // 2:])
+    at_most = int(np.sum(np.searchsorted(second, obs - first, side="right")))
+    at_least = int(np.sum(second.size - np.searchsorted(second, obs - first, side="left")))
+    return min(1.0, 2 * min(at_most, at_least) / 2 ** d.size)
+
+
 @pytest.mark.parametrize("name", PAIRED_NAMES)
 def test_wilcoxon_against_scipy_and_pingouin(name):
     x, digits = pair(name)
@@ -460,24 +479,59 @@ def test_wilcoxon_against_scipy_and_pingouin(name):
     res = sg.run_test("paired", "wilcoxon", (x,), digits=digits)
     untied = pd.Series(np.abs(nz)).is_unique
     exact = res.method.startswith("exact")
-    assert exact == (untied and nz.size <= 50)
-    assert exact == (name == "partial_corr_x_vs_y")
+    assert exact == (nz.size <= 50)
+    assert exact == (name in ("rm_anova_wide_before_vs_week1", "blandaltman_a_vs_b",
+                              "partial_corr_x_vs_y"))
+    assert untied == (name in ("partial_corr_x_vs_y", "mixed_anova_aug_vs_jan"))
+    ranks_nz = stats.rankdata(np.abs(nz))
+    t_plus, t_minus = ranks_nz[nz > 0].sum(), ranks_nz[nz < 0].sum()
+    assert res.statistic == pytest.approx(t_plus, rel=1e-12)
+    assert res.details["n_zero"] == int(np.sum(d == 0))
+    if exact and not untied:
+        # Tied mid-ranks: the exact p over every sign pattern, counted in two halves here; with
+        # 11 pairs also scipy.stats.wilcoxon with an explicit PermutationMethod (2^11 patterns,
+        # fewer than its 9999 resamples, so all of them) and a plain listing of the patterns.
+        assert "tied mid-ranks" in res.method
+        assert res.p == pytest.approx(_signed_rank_p_by_halves(d), rel=1e-12)
+        if nz.size <= 13:
+            ref = stats.wilcoxon(d, zero_method="wilcox", method=stats.PermutationMethod())
+            assert res.p == pytest.approx(ref.pvalue, rel=1e-9)  # scipy, all sign patterns
+            assert res.p == pytest.approx(_enumerated_signed_rank_p(d), rel=1e-12)
+            assert min(t_plus, t_minus) == pytest.approx(ref.statistic, rel=1e-12)
+        return
     method = "exact" if exact else "asymptotic"
     # scipy and pingouin: zeros dropped (zero_method='wilcox'), no continuity correction
     ref = stats.wilcoxon(nz if exact else d, zero_method="wilcox", correction=False,
                          method=method)
     assert res.p == pytest.approx(ref.pvalue, rel=1e-9)
-    ranks_nz = stats.rankdata(np.abs(nz))
-    t_plus, t_minus = ranks_nz[nz > 0].sum(), ranks_nz[nz < 0].sum()
-    assert res.statistic == pytest.approx(t_plus, rel=1e-12)
     assert min(t_plus, t_minus) == pytest.approx(ref.statistic, rel=1e-12)  # scipy's min(T+, T-)
     pgr = _quiet_pingouin(pg.wilcoxon, nz, correction=False, method=method).iloc[0]  # pingouin
     assert res.p == pytest.approx(float(pgr["p_val"]), rel=1e-9)
-    assert res.details["n_zero"] == int(np.sum(d == 0))
     if not exact:
         z = stats.wilcoxon(d, zero_method="wilcox", correction=False,
                            method="asymptotic").zstatistic
         assert abs(res.details["z"]) == pytest.approx(abs(z), rel=1e-10)
+
+
+def test_signed_rank_exact_p_against_scipy_permutations_and_the_untied_distribution():
+    # Property check on invented whole-number differences (3 to 12 of them, with ties and zeros
+    # or without): the module's exact p equals scipy.stats.wilcoxon with an explicit
+    # PermutationMethod, which lists all 2^n <= 4096 sign patterns (fewer than its 9999
+    # resamples); untied, it also equals the p of Wilcoxon's exact distribution
+    # (scipy.stats.wilcoxon, method='exact').
+    rng = np.random.default_rng(2024)
+    for n in range(3, 13):
+        for spread in (3, 40):
+            d = rng.integers(-spread, spread + 1, n).astype(float)
+            nz = d[d != 0]
+            if nz.size == 0:
+                continue
+            p = sg.signed_rank_exact_p(nz)
+            ref = stats.wilcoxon(d, zero_method="wilcox", method=stats.PermutationMethod())
+            assert p == pytest.approx(ref.pvalue, rel=1e-9), d  # scipy, all sign patterns
+            if pd.Series(np.abs(nz)).is_unique:
+                exact = stats.wilcoxon(nz, method="exact").pvalue  # scipy, untied distribution
+                assert p == pytest.approx(exact, rel=1e-9), d
 
 
 @pytest.mark.parametrize("name", PAIRED_NAMES)
@@ -846,16 +900,21 @@ def test_permutation_tests_on_constant_data_give_p_one_with_a_note():
 
 def test_rounding_digits_reach_the_paired_tests():
     # 0.3 - 0.1 and 0.2 - 0.0 differ in binary floating point: scipy on the raw differences sees
-    # five distinct |d|. Rounded (to 1 or to the default 12 places) they tie, which moves the
-    # signed-rank test from the exact to the normal branch; its z is scipy's on the rounded d.
+    # five distinct |d| (exact p 0.4375). Rounded (to 1 or to the default 12 places) they tie,
+    # which moves the signed-rank test to the exact distribution over the sign patterns of the
+    # tied mid-ranks: scipy's on the rounded d, every pattern listed (PermutationMethod).
     x = np.array([[0.3, 0.1], [0.2, 0.0], [1.5, 1.0], [0.2, 0.9], [2.0, 0.8]])
-    assert pd.Series(np.abs(x[:, 0] - x[:, 1])).is_unique  # pandas, raw differences
+    raw = x[:, 0] - x[:, 1]
+    assert pd.Series(np.abs(raw)).is_unique  # pandas, raw differences
+    untied_p = stats.wilcoxon(raw, method="exact").pvalue  # scipy, raw differences
     for digits in (1, 12):
         res = sg.run_test("paired", "wilcoxon", (x,), digits=digits)
-        assert res.method.startswith("normal")
-        d = np.round(x[:, 0] - x[:, 1], digits)
-        z = stats.wilcoxon(d, correction=False, method="asymptotic").zstatistic
-        assert abs(res.details["z"]) == pytest.approx(abs(z), rel=1e-10)
+        assert "tied mid-ranks" in res.method
+        d = np.round(raw, digits)
+        ref = stats.wilcoxon(d, method=stats.PermutationMethod()).pvalue  # scipy, 2^5 patterns
+        assert res.p == pytest.approx(ref, rel=1e-12)
+        assert res.p == pytest.approx(_enumerated_signed_rank_p(d), rel=1e-12)
+        assert not math.isclose(res.p, untied_p, rel_tol=1e-6)
     # Whole-number rounding turns 0.2 and 0.4 into zeros: the sign test then counts one sign.
     y = np.array([[1.2, 1.0], [2.4, 2.0], [3.0, 1.0]])
     assert sg.run_test("paired", "sign_test", (y,), digits=1).details["zero"] == 0
