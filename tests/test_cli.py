@@ -83,12 +83,21 @@ def test_unreadable_file(run_cli, reading_csv):
         reading_csv.chmod(0o644)
 
 
-def test_read_failure_after_access_check(run_cli, reading_csv, monkeypatch):
-    # os.access can approve a file that then fails to read (ACLs, network folders, races)
-    def refuse(self):
-        raise PermissionError(13, "Permission denied", str(self))
+@pytest.mark.parametrize("failing_open", [1, 2], ids=["scanning the bytes", "reading the text"])
+def test_read_failure_after_access_check(run_cli, reading_csv, monkeypatch, failing_open):
+    # os.access can approve a file that then fails to read (ACLs, network folders, races); the
+    # file is opened twice, once to find its encoding and once to read it
+    real_open = Path.open
+    opened = []
 
-    monkeypatch.setattr(Path, "read_bytes", refuse)
+    def refuse(self, *args, **kwargs):
+        if self.name == "reading.csv":
+            opened.append(self)
+            if len(opened) == failing_open:
+                raise PermissionError(13, "Permission denied", str(self))
+        return real_open(self, *args, **kwargs)
+
+    monkeypatch.setattr(Path, "open", refuse)
     res = run_cli(*check_args(reading_csv))
     assert_one_line_error(res, "reading.csv", "cannot be read", "Permission denied")
 
