@@ -263,7 +263,8 @@ def paired_screen(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, d: np.n
 def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...],
              brief: bool = False) -> KSpread:
     """Spread across k groups: largest over smallest SD, Levene (mean-centred), Brown-Forsythe
-    (median-centred) and Fligner-Killeen across all groups (scipy.stats), and the n ratio."""
+    (median-centred) and Fligner-Killeen across all groups (scipy.stats), and the n ratio.
+    `brief` (a screen) leaves out the three tests, which the policy's checks do not read."""
     sds = [float(sample_sd(g)) for g in groups]
     hi, lo = int(np.argmax(sds)), int(np.argmin(sds))
     notes: list[str] = []

@@ -210,6 +210,10 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     other units' interval flips rest on the shifted interval (a screen passes the extreme cases,
     the only units whose flips the outlier check reads)."""
     rule = _rule(effect, per_case=True)
+    if recheck_rows is not None and effect.ci_method != "bca_bootstrap":
+        rule = (f"{effect.ci_method} interval recomputed exactly on the reduced data only for the"
+                " extreme cases (a screen reads no other flip); the other cases' flips use the"
+                " interval shifted by the change in the estimate")
     if effect.estimate is None:
         empty = Fragility(None, (), False)
         return EffectInfluence(effect.name, None, None, None, None, (), (), (), empty, empty, rule)

@@ -80,7 +80,9 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     `scope` "screen" computes only what a screen row shows (`auditor.screen`): every estimate with
     its analytic interval, but bootstrap intervals and influence only for the indices the row can
     show (`screen_focus`), the fragility search only for the primary index, no pairwise
-    comparisons and no texts. Every number it does compute equals the full run's.
+    comparisons and no texts. Every number a screen row shows equals the full run's; so do the
+    estimates and intervals, while the outlier check's index, rechecked only for the extreme
+    cases, says so in its interval rule.
     """
     if scope not in SCOPES:
         raise DesignError(f"scope '{scope}': use one of {', '.join(SCOPES)}")
@@ -102,7 +104,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                           " condition columns of a wide file (--paired BEFORE,AFTER)")
     else:
         columns = [outcome, group] + ([subject] if subject else [])
-    if isinstance(data, Table):  # already read (screening reads the file once for all outcomes)
+    if isinstance(data, Table):  # already read (the screen reads a batch of columns at a time)
         table = data
     elif isinstance(data, (str, os.PathLike)):
         table = read_table(data, columns)
@@ -464,10 +466,10 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
     stratified resamples of `samples`. Returns (effects, notes about undefined effects,
     leave-one-out values by effect name).
 
-    With `focus` (a set of effect names; used by the screen), only the focus effects get
-    leave-one-out values, and only those whose quoted interval is the bootstrap's (`quoted` is
-    "bootstrap", or the effect has no analytic interval) are resampled; the others keep their
-    analytic interval alone. The resamples are drawn from `rng` exactly as without a focus, so every
+    With `focus` (a set of effect names; used by the screen), only the focus effects whose quoted
+    interval is the bootstrap's (`quoted` is "bootstrap", or the effect has no analytic interval)
+    are resampled, with the effects they are derived from; those and the other focus effects get
+    leave-one-out values; the rest keep their analytic interval alone. The resamples are drawn from `rng` exactly as without a focus, so every
     interval computed is the one the full run gives."""
     estimates = {s.name: _guarded(s, samples, level) for s in specs}
     defined = [s for s in specs if estimates[s.name].value is not None]

@@ -1,8 +1,11 @@
 """Screen a whole data set: every numeric outcome audited against one grouping, one summary row
 per outcome.
 
-Outcomes are audited in batches of columns (`batches`): each batch reads the file for its own
-columns only, so no process holds more than a batch of the data whatever the number of outcomes.
+Outcomes are audited in batches of columns (`batches`). A text file is streamed again for each
+batch, keeping that batch's columns only, so no process holds more than a batch of the data
+whatever the number of outcomes (the file must not change meanwhile: its size and modification
+time are checked at every read). A workbook (slow to parse) and a data frame are held whole by the
+calling process, and each batch is handed its own columns only.
 Each outcome is audited in the pipeline's screen scope (everything its row shows, computed as the
 full audit computes it; `--reports` runs the full audit) under its own seed, derived from the
 user's seed and the outcome's name (SHA-256 of both), so adding or removing a column changes no
@@ -34,7 +37,7 @@ from pathlib import Path
 
 import numpy as np
 
-from auditor.errors import AuditError, DesignError
+from auditor.errors import AuditError, DesignError, InputFileError
 from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
 from auditor.decide import quoted_interval
 from auditor.pipeline import SCREEN_COMPANIONS
@@ -157,8 +160,8 @@ def _failed_row(outcome: str, reason: str, seed: int, status: str = "not audited
 
 @dataclasses.dataclass(frozen=True)
 class _Job:
-    table: Table | None  # the whole table (a data frame's), or None: each batch reads `path`
-    path: str | None
+    path: str | None  # the file each batch reads its columns from (None: batches carry theirs)
+    stamp: tuple | None  # the file's size and modification time when the screen began
     group: str
     groups: tuple[str, ...] | None
     subject: str | None
@@ -178,30 +181,55 @@ def _init_worker(job: _Job) -> None:  # runs once in each worker process
     _WORKER_JOB = job
 
 
-def _batch_in_worker(names: list[str]) -> list:
-    return audit_batch(_WORKER_JOB, names)
+def _batch_in_worker(task) -> list:
+    names, table = task
+    return audit_batch(_WORKER_JOB, names, table)
 
 
-def audit_batch(job: _Job, names: list[str]) -> list[tuple[str, object]]:
-    """Audit a batch of columns: per column ("row", row) or ("skipped", reason). A file is read
-    for the batch's columns only, so that no process holds more than a batch of the data."""
-    table = job.table
-    if table is None:
-        fixed = [job.group] + ([job.subject] if job.subject else [])
-        table = read_table(job.path, fixed + [n for n in names if n not in fixed])
+def file_stamp(path) -> tuple[int, int]:
+    """(size, modification time in ns) of a file: a screen that reads the file again for each
+    batch checks that it is still the file it began with."""
+    info = os.stat(path)
+    return info.st_size, info.st_mtime_ns
+
+
+def _read_batch(job: _Job, names: list[str]) -> Table:
+    """The batch's columns (and the grouping and subject) read from the job's file, which must
+    not have changed since the screen began."""
+    def unchanged() -> None:
+        try:
+            same = file_stamp(job.path) == job.stamp
+        except OSError:
+            same = False
+        if not same:
+            raise InputFileError(f"{job.path}: the file changed (or went away) during the"
+                                 " screen; run the screen again on the finished file")
+
+    fixed = [job.group] + ([job.subject] if job.subject else [])
+    unchanged()
+    table = read_table(job.path, fixed + [n for n in names if n not in fixed])
+    unchanged()
+    return table
+
+
+def audit_batch(job: _Job, names: list[str], table: Table | None = None,
+                each: Callable[[str], None] | None = None) -> list[tuple[str, object]]:
+    """Audit a batch of columns of `table` (None: read them from the job's file): per column
+    ("row", row) or ("skipped", reason). `each(column)` is called after every column."""
+    table = _read_batch(job, names) if table is None else table
     out = []
     for name in names:
         why = not_numeric(table.columns[name])
         out.append(("skipped", why) if why else ("row", audit_one(job, name, table)))
+        if each is not None:
+            each(name)
     return out
 
 
-def audit_one(job: _Job, outcome: str, table: Table | None = None) -> dict:
-    """Audit one outcome of `table` (default the job's); a data problem becomes a row with its
-    reason."""
+def audit_one(job: _Job, outcome: str, table: Table) -> dict:
+    """Audit one outcome of `table`; a data problem becomes a row with its reason."""
     from auditor.pipeline import audit
 
-    table = job.table if table is None else table
 
     seed = outcome_seed(job.seed, outcome)
     try:
@@ -252,7 +280,7 @@ def _report_names(outcomes) -> dict:
 # ------------------------------------------------------------------ the whole screen
 
 
-BATCH_OUTCOMES = 50  # columns audited per batch (each batch reads the file once) ...
+BATCH_OUTCOMES = 50  # columns audited per batch ...
 BATCH_CELLS = 2_000_000  # ... and at most about this many cells of text per batch
 
 
@@ -265,18 +293,27 @@ def batches(columns: list[str], rows: int, jobs: int) -> list[list[str]]:
     return [columns[i:i + size] for i in range(0, len(columns), size)]
 
 
-def _results(job: _Job, parts: list[list[str]], jobs: int) -> Iterator[list]:
-    """The results of each batch, in order, serially or from `jobs` worker processes."""
-    if jobs <= 1 or len(parts) <= 1:
-        for names in parts:
-            yield audit_batch(job, names)
+def _results(job: _Job, tasks: list[tuple[list[str], Table | None]], jobs: int,
+             each: Callable[[str], None] | None = None) -> Iterator[list]:
+    """The results of each batch, in order, serially (calling `each` after every column) or from
+    `jobs` worker processes. A task is (columns, their table or None to read them from the
+    file)."""
+    if jobs <= 1 or len(tasks) <= 1:
+        for names, table in tasks:
+            yield audit_batch(job, names, table, each)
         return
     import multiprocessing
 
     context = multiprocessing.get_context("spawn")
     with ProcessPoolExecutor(max_workers=jobs, mp_context=context, initializer=_init_worker,
                              initargs=(job,)) as pool:
-        yield from pool.map(_batch_in_worker, parts, chunksize=1)
+        yield from pool.map(_batch_in_worker, tasks, chunksize=1)
+
+
+def _part(table: Table, fixed: list[str], names: list[str]) -> Table:
+    """The table cut down to the fixed columns and a batch's columns."""
+    keep = dict.fromkeys(fixed + names)
+    return dataclasses.replace(table, columns={c: table.columns[c] for c in keep})
 
 
 def holm(pvalues: list[float | None]) -> list[float | None]:
@@ -350,17 +387,24 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                     seed)
     seed = int(seed)
     fixed = [group] + ([subject] if subject else [])
-    if isinstance(data, (str, os.PathLike)):  # read by batches; here the fixed columns only
-        table, source = None, str(data)
-        first = read_table(data, fixed)
-        header, name = first.header, first.path
-        wanted = list(outcomes) if outcomes else [c for c in header if c not in fixed]
-        _check_columns(header, wanted, first.path)
+    table = path = stamp = None
+    if isinstance(data, (str, os.PathLike)):
+        if Path(data).suffix.lower() in {".xlsx", ".xlsm"}:  # a workbook is read once, whole
+            header = read_table(data, fixed).header
+            wanted = list(outcomes) if outcomes else [c for c in header if c not in fixed]
+            _check_columns(header, wanted, str(data))
+            first = table = read_table(data, fixed + wanted)
+        else:  # a text file is read again for each batch of columns, streamed
+            stamp = file_stamp(data) if Path(data).is_file() else None
+            first = read_table(data, fixed)
+            path = first.path
+            wanted = list(outcomes) if outcomes else [c for c in first.header if c not in fixed]
+            _check_columns(first.header, wanted, first.path)
     else:
         data = data.rename(columns=str)  # the table holds column names as text
         wanted = list(outcomes) if outcomes else [c for c in data.columns if c not in fixed]
         first = table = table_from_frame(data, fixed + wanted)
-        header, name, source = table.header, table.path, None
+    header, name = first.header, first.path
     unknown = [c for c in (exclude or ()) if c not in header]
     if unknown:
         raise DesignError(f"--exclude names no column '{unknown[0]}' of {name}")
@@ -373,7 +417,7 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         if out is None:
             raise DesignError("--reports needs --out: the reports are written beside the screen")
         report_folder = str(Path(out) / "reports")
-    job = _Job(table, source, group, tuple(groups) if groups else None, subject, policy, seed,
+    job = _Job(path, stamp, group, tuple(groups) if groups else None, subject, policy, seed,
                resamples, level, report_folder, _report_names(looked_at) if reports else None)
     spool = io.StringIO() if out is None else None
     if out is not None:
@@ -382,21 +426,33 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         spool = spool_path.open("w+", encoding="utf-8")
     keys, pvalues, offsets = [], [], []
     parts = batches(looked_at, first.n_rows, jobs)
+    tasks = [(names, None if table is None else _part(table, fixed, names)) for names in parts]
+    del table, first  # the batches hold what is needed
+    serial = jobs <= 1 or len(tasks) <= 1
+    done = 0
+
+    def tick(column: str) -> None:
+        nonlocal done
+        done += 1
+        if progress is not None:
+            progress(done, len(looked_at), column)
+
     try:
-        done = 0
-        for names, results in zip(parts, _results(job, parts, jobs)):
+        for names, results in zip(parts, _results(job, tasks, jobs, tick if serial else None)):
             for column, (kind, found) in zip(names, results):
-                done += 1
+                if not serial:
+                    tick(column)
                 if kind == "skipped":
                     skipped.append((column, found))
-                else:
-                    i = len(offsets)
-                    offsets.append(spool.tell())
-                    spool.write(json.dumps(found, allow_nan=False, default=_plain_number) + "\n")
-                    keys.append(_sort_value(found, sort if sort not in ("p_holm",) else "p", i))
-                    pvalues.append(found.get("p"))
-                if progress is not None:
-                    progress(done, len(looked_at), column)
+                    continue
+                i = len(offsets)
+                offsets.append(spool.tell())
+                spool.write(json.dumps(found, allow_nan=False, default=_plain_number) + "\n")
+                keys.append(_sort_value(found, sort if sort not in ("p_holm",) else "p", i))
+                pvalues.append(found.get("p"))
+        # the excluded columns first, then the others in the order of the columns
+        position, excluded = {c: i for i, c in enumerate(wanted)}, set(exclude or ())
+        skipped.sort(key=lambda s: (s[0] not in excluded, position.get(s[0], -1)))
         adjusted = (holm(pvalues), benjamini_hochberg(pvalues))
         order = sorted(range(len(offsets)), key=lambda i: (keys[i], i))
 

@@ -797,3 +797,134 @@ def test_small_batches_give_the_rows_and_skips_of_one_batch(run_cli, write_file,
     # the file is read for the grouping first, then for two outcome columns at a time
     assert asked[0] == ["g"] and all(len(a) <= 3 and a[0] == "g" for a in asked[1:])
     assert [n for a in asked[1:] for n in a[1:]] == list(columns)
+
+
+def test_a_file_that_changes_during_the_screen_stops_it_with_one_line(run_cli, write_file,
+                                                                       tmp_path, monkeypatch):
+    import auditor.screen as screen_module
+
+    path = write_file("changing.csv", _csv_text(*_two_groups(SORT_COLUMNS)))
+    real_read = screen_module.read_table
+    reads = []
+
+    def read_then_edit(source, names):
+        found = real_read(source, names)
+        reads.append(names)
+        if len(reads) == 2:  # after the first batch, someone saves the file again
+            with open(path, "a", encoding="utf-8") as f:
+                f.write("A,1,2,3,4,5,6\n")
+        return found
+
+    monkeypatch.setattr(screen_module, "BATCH_OUTCOMES", 2)
+    monkeypatch.setattr(screen_module, "read_table", read_then_edit)
+    res = run_cli("screen", path, "--group", "g", "--out", tmp_path / "out", "--boot", BOOT,
+                  "--quiet")
+    _one_line_error(res, "changing.csv", "changed", "during the screen")
+    assert not (tmp_path / "out" / "screen.csv").exists()
+
+
+def test_a_workbook_is_read_once_and_screened_like_its_csv(run_cli, write_file, tmp_path,
+                                                           strict_json, monkeypatch):
+    import openpyxl
+
+    import auditor.screen as screen_module
+
+    header, rows = _two_groups(SORT_COLUMNS)
+    csv_path = write_file("many.csv", _csv_text(header, rows))
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet.append(header)
+    for row in rows:
+        sheet.append([row[0]] + [float(c) if c not in ("", "NA") else c for c in row[1:]])
+    book.save(tmp_path / "many.xlsx")
+    reads = []
+    real_read = screen_module.read_table
+    monkeypatch.setattr(screen_module, "BATCH_OUTCOMES", 2)
+    monkeypatch.setattr(screen_module, "read_table",
+                        lambda source, names: reads.append(names) or real_read(source, names))
+    _screen(run_cli, tmp_path / "many.xlsx", tmp_path / "book")
+    assert len(reads) == 2  # the header, then every column once
+    _screen(run_cli, csv_path, tmp_path / "text")
+    book_rows = _document(tmp_path / "book", strict_json)["rows"]
+    text_rows = _document(tmp_path / "text", strict_json)["rows"]
+    for mine, theirs in zip(book_rows, text_rows):
+        assert (mine["outcome"], mine["estimate"], mine["p"]) == \
+            (theirs["outcome"], theirs["estimate"], theirs["p"])
+
+
+def test_skipped_columns_keep_the_order_of_the_named_outcomes(run_cli, write_file, tmp_path,
+                                                              strict_json):
+    columns = {"b_text": lambda k, i, rng: "words", "a_normal": _normal(0.5),
+               "e_empty": lambda k, i, rng: ""}
+    path = write_file("order.csv", _csv_text(*_two_groups(columns)))
+    _screen(run_cli, path, tmp_path, "--outcomes", "b_text,g,a_normal,e_empty")
+    skipped = [s["column"] for s in _document(tmp_path, strict_json)["skipped"]]
+    assert skipped == ["b_text", "g", "e_empty"]
+
+
+def test_a_serial_screen_reports_progress_after_every_column(write_file, tmp_path):
+    from auditor.screen import run_screen
+
+    columns = dict(SORT_COLUMNS)
+    columns["words"] = lambda k, i, rng: "text"
+    path = write_file("progress.csv", _csv_text(*_two_groups(columns)))
+    seen = []
+    run_screen(path, group="g", resamples=BOOT, progress=lambda d, t, c: seen.append((d, t, c)))
+    assert seen == [(k + 1, len(columns), c) for k, c in enumerate(columns)]
+
+
+def test_a_data_frame_screen_sends_each_worker_only_its_batch(monkeypatch):
+    import auditor.screen as screen_module
+
+    name, frame, args = _scope_frames()[0]
+    wide = pd.concat([frame] + [frame[["y"]].rename(columns={"y": f"y{k}"}) for k in range(5)],
+                     axis=1)
+    sent = []
+    real_results = screen_module._results
+
+    def recording(job, tasks, jobs, each=None):
+        sent.extend(sorted(table.columns) for _, table in tasks)
+        return real_results(job, tasks, jobs, each)
+
+    monkeypatch.setattr(screen_module, "BATCH_OUTCOMES", 2)
+    monkeypatch.setattr(screen_module, "_results", recording)
+    rows = screen(wide, group="g", resamples=BOOT)
+    assert len(rows) == 6 and len(sent) == 3
+    assert all(len(columns) == 3 and "g" in columns for columns in sent)
+
+
+@pytest.mark.parametrize("case", ["modified_z", "many_cases", "paired_fallback"])
+def test_the_screen_scope_matches_the_full_audit_in_harder_cases(case):
+    """Cases the first scope test leaves out: another outlier rule, more than EXACT_ALL_UNITS
+    cases with extreme ones (the nearest-first rechecks), and a paired primary that is undefined
+    (constant differences), whose fallback the screen finishes on its own."""
+    from auditor.pipeline import audit
+    from auditor.policy import default_text, parse_policy
+    from auditor.screen import summary_row
+
+    rng = np.random.default_rng(350)
+    policy = default_policy()
+    if case == "modified_z":
+        policy = parse_policy(default_text().replace('rule = "beyond_3_iqr"',
+                                                     'rule = "modified_z"', 1), "modified z")
+        y = np.r_[rng.normal(0.4, 1, 30), 6.5, rng.normal(0, 1, 31)]
+        frame, args = pd.DataFrame({"g": ["A"] * 31 + ["B"] * 31, "y": y}), dict(group="g")
+    elif case == "many_cases":
+        y = np.r_[rng.normal(0.2, 1, 348), 9.0, -8.0, rng.normal(0, 1, 350)]
+        frame, args = pd.DataFrame({"g": ["A"] * 350 + ["B"] * 350, "y": y}), dict(group="g")
+    else:
+        policy = _bootstrap_policy()
+        before = np.round(rng.normal(20, 2, 8), 1)
+        frame = pd.DataFrame({"id": np.tile(np.arange(8), 2), "t": ["pre"] * 8 + ["post"] * 8,
+                              "y": np.r_[before, before - 0.5]})  # every difference 0.5
+        args = dict(group="t", subject="id")
+    kwargs = dict(args, outcome="y", policy=policy, seed=5, resamples=BOOT)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        full = audit(frame, **kwargs)
+        lean = audit(frame, scope="screen", **kwargs)
+    assert summary_row(lean, 1, policy) == summary_row(full, 1, policy)
+    if case == "paired_fallback":
+        assert lean.decision.notes and "undefined" in lean.decision.notes[0]
+    if case == "many_cases":
+        assert lean.decision.branch == full.decision.branch
