@@ -26,8 +26,8 @@ Each N runs in a fresh process (started with 'spawn') that:
    step 1, and the largest peak of its worker processes;
 3. times the baseline in the same process on the same data: a plain Python loop over the first
    few outcomes (one of each shape), scaled to N. Per outcome it computes the statistics of the
-   screen's row with scipy and pingouin: Shapiro-Wilk, skewness and excess kurtosis per group,
-   Levene's test; Cohen's d (pingouin.compute_effsize), A (Mann-Whitney U / n_A n_B) and the
+   screen's row with scipy and pingouin: Shapiro-Wilk, skewness and excess kurtosis per group
+   (the spread check reads the SDs); Cohen's d (pingouin.compute_effsize), A (Mann-Whitney U / n_A n_B) and the
    row's primary index, each with a BCa interval from scipy.stats.bootstrap (drawing the very
    resamples the screen draws: the limits must agree with the row's); the p of the row's test;
    leave-one-out values of d and of the primary index by refitting after each removal (best of
@@ -198,7 +198,7 @@ def plain_fragility(a: np.ndarray, b: np.ndarray, name: str, level: float = 0.95
 def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int,
                      primary: str = "hedges_g", test: str = "student_t") -> dict:
     """The statistics of one screen row, computed plainly with scipy and pingouin: the
-    diagnostics, d, A and the primary index with BCa intervals, the primary test's p, and the
+    normality diagnostics, d, A and the primary index with BCa intervals, the primary test's p, and the
     leave-one-out values of d (the outlier check) and of the primary index (the most influential
     case) by refitting."""
     import pingouin
@@ -210,7 +210,6 @@ def baseline_outcome(a: np.ndarray, b: np.ndarray, resamples: int, seed: int,
         "shapiro_p": [stats.shapiro(x).pvalue for x in (a, b)],
         "skew_kurtosis": [(stats.skew(x, bias=False), stats.kurtosis(x, bias=False))
                           for x in (a, b)],
-        "levene_p": stats.levene(a, b).pvalue,
         "d": pingouin.compute_effsize(a, b, eftype="cohen"),
         "A": _prob_superiority(a, b),
         "p": _test_p(test, a, b),
@@ -295,7 +294,7 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
         before = _peak_bytes() if before is None else before
         seconds, files, skipped = _screen_timed(path, resamples, jobs, Path(folder) / "screen",
                                                 policy)
-        extra_peak = _peak_bytes() - before
+        extra_peak = max(0, _peak_bytes() - before)  # 0: the screen stayed below the earlier peak
         worker_peak = _peak_bytes(resource.RUSAGE_CHILDREN)
         rows = json.loads(files.json.read_text(encoding="utf-8"))["rows"]
         default_seconds = (_screen_timed(path, resamples, jobs, Path(folder) / "default", None)[0]
@@ -430,9 +429,10 @@ def main(argv=None) -> int:
         lean = r["baseline_per_outcome"] * n
         whole = (r["baseline_per_outcome"] + r["fragility_per_outcome"]) * n
         target = "; target >= 20x" if n == 1000 else ""
+        cores = f"; per process {whole / r['seconds'] / args.jobs:.1f}x" if args.jobs > 1 else ""
         print(f"baseline / ours, {n} outcomes: {whole / r['seconds']:.1f}x with every statistic of"
               f" the row ({r['baseline_per_outcome'] + r['fragility_per_outcome']:.3f} s per"
-              f" outcome, scaled from {r['baseline_count']} of {n}){target}; without the"
+              f" outcome, scaled from {r['baseline_count']} of {n}){target}{cores}; without the"
               f" fragility search {lean / r['seconds']:.1f}x ({r['baseline_per_outcome']:.3f} s"
               f" per outcome)")
     for n in counts:
