@@ -45,14 +45,15 @@ QUIET_FLAGS = (
     "--disable-features=NetworkTimeServiceQuerying,Translate,OptimizationHints,MediaRouter",
 )
 
-# Hosts Chromium contacts on its own at start-up (seen with Debian's chromium 156 and the flags
-# above); exact names only, so a page that fetches anything else, fonts from a CDN included, is
-# still caught.
+# Hosts Chromium contacts on its own at start-up (seen with Debian's chromium 150 and 156 and the
+# flags above, also when opening a page that requests nothing); exact names only, so a page that
+# fetches anything else, fonts from a CDN included, is still caught.
 BROWSER_OWN_HOSTS = frozenset({
     "accounts.google.com",     # signed-in account list
     "clients2.google.com",     # network time
     "update.googleapis.com",   # component update check
     "redirector.gvt1.com",     # component download
+    "www.google.com",          # chromium 150, at start-up, also for a blank page
 })
 
 
