@@ -17,6 +17,7 @@ import math
 import numpy as np
 from scipy import stats
 
+from auditor.moments import mean_var
 from auditor.parametric import Estimate
 from auditor.ranks import midranks, tie_sizes
 
@@ -115,11 +116,19 @@ def independent_tests(groups) -> dict:
                                  "p": float(kw.pvalue)}
     except ValueError:
         out["kruskal_wallis"] = {"statistic": None, "df": len(groups) - 1, "p": None}
+    n = sum(len(g) for g in groups)
+    df = [len(groups) - 1, n - len(groups)]
+    if all(np.all(np.asarray(g) == np.asarray(g)[0]) for g in groups):
+        out["anova"] = {"statistic": None, "df": df, "p": None,
+                        "reason": "no variation within any group: the within-group mean square"
+                                  " is zero"}
+    else:
+        with np.errstate(all="ignore"):
+            f = stats.f_oneway(*groups)
+        statistic = _finite(f.statistic)
+        out["anova"] = {"statistic": statistic, "df": df,
+                        "p": None if statistic is None else _finite(f.pvalue)}
     with np.errstate(all="ignore"):
-        f = stats.f_oneway(*groups)
-        n = sum(len(g) for g in groups)
-        out["anova"] = {"statistic": _finite(f.statistic), "df": [len(groups) - 1, n - len(groups)],
-                        "p": _finite(f.pvalue)}
         out["welch_anova"] = welch_anova(groups)
     return out
 
@@ -131,7 +140,7 @@ def welch_anova(groups) -> dict:
     k = len(groups)
     n = np.array([len(g) for g in groups], dtype=float)
     m = np.array([np.mean(g) for g in groups])
-    v = np.array([np.var(g, ddof=1) for g in groups])
+    v = np.array([mean_var(np.asarray(g, dtype=float))[1] for g in groups])  # 0 when constant
     if np.any(v == 0):
         return {"statistic": None, "df": None, "p": None,
                 "reason": "a group has zero variance"}

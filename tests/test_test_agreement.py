@@ -117,3 +117,34 @@ def test_k_repeated_pairwise_follow_ups_are_the_registry_wilcoxon():
         nonzero = d[d != 0]
         ranks = stats.rankdata(np.abs(nonzero))  # scipy mid-ranks of |d|, zeros dropped
         assert comp.statistic == pytest.approx(float(np.sum(ranks[nonzero > 0])), abs=1e-12)
+
+
+# ------------------------------------------------------------------ k groups
+
+
+def k_frame(groups) -> pd.DataFrame:
+    return pd.DataFrame({"g": np.repeat([f"g{j}" for j in range(len(groups))],
+                                        [len(v) for v in groups]),
+                         "y": np.concatenate([np.asarray(v, dtype=float) for v in groups])})
+
+
+K_DATA = {
+    "spread out": [[3.1, 4.2, 5.0, 2.2, 3.3], [4.4, 6.1, 5.5, 5.9, 4.8], [2.0, 2.6, 3.1, 1.9]],
+    "a constant decimal group": [[0.1, 0.1, 0.1], [0.2, 0.4, 0.3], [0.5, 0.9, 0.7]],
+    "every group constant": [[0.1, 0.1, 0.1], [0.3, 0.3, 0.3], [0.7, 0.7]],
+}
+
+
+@pytest.mark.parametrize("name", sorted(K_DATA))
+def test_k_group_tests_block_agrees_with_the_tests_a_policy_runs(name):
+    groups = K_DATA[name]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # undefined effects of constant groups are reported
+        result = audit(k_frame(groups), outcome="y", group="g", resamples=200, seed=3)
+    samples = tuple(np.asarray(v, dtype=float) for v in groups)
+    for test in ("anova", "welch_anova", "kruskal_wallis"):
+        listed, ran = result.tests[test], sg.run_test("k_groups", test, samples)
+        assert (listed["p"] is None) == (ran.p is None), (name, test, listed, ran.reason)
+        if ran.p is not None:
+            assert listed["p"] == pytest.approx(ran.p, rel=1e-12), (name, test)
+            assert listed["statistic"] == pytest.approx(ran.statistic, rel=1e-12), (name, test)
