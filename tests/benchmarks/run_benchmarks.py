@@ -36,7 +36,6 @@ import gc
 import math
 import multiprocessing
 import os
-import resource
 import sys
 import time
 import tracemalloc
@@ -48,7 +47,7 @@ from scipy import stats
 from auditor import parametric, ranks
 from auditor.effects import two_group_effects
 from auditor.pipeline import estimate_all, leave_one_out_all
-from timing import best_of, whole_numbers
+from timing import best_of, peak_bytes, resident_bytes, whole_numbers
 
 SECTIONS = ("loo", "sort", "bca", "hl", "whole")
 PINGOUIN_FULL_MAX = 5000  # per group; above it a full BCa run would build n x n jackknife arrays
@@ -210,20 +209,6 @@ def hodges_lehmann(n: int, rng) -> None:
 # ------------------------------------------------------------------ whole audit, a process per size
 
 
-def _resident_bytes() -> int | None:
-    """Current resident memory of this process (Linux), or None where /proc is missing."""
-    try:
-        with open("/proc/self/statm") as f:
-            return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
-    except (OSError, ValueError, IndexError):
-        return None
-
-
-def _peak_bytes() -> int:
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    return peak if sys.platform == "darwin" else peak * 1024  # bytes on macOS, KiB elsewhere
-
-
 def _frame(n: int, seed: int):
     import pandas as pd
 
@@ -242,12 +227,12 @@ def _whole_audit_child(n: int, resamples: int, seed: int) -> tuple[float, int]:
         audit(_frame(20, seed), outcome="score", group="arm", resamples=100)  # lazy imports
         frame = _frame(n, seed)
         gc.collect()
-        before = _resident_bytes()
-        before = _peak_bytes() if before is None else before
+        before = resident_bytes()
+        before = peak_bytes() if before is None else before
         start = time.perf_counter()
         audit(frame, outcome="score", group="arm", resamples=resamples)
         seconds = time.perf_counter() - start
-    return seconds, _peak_bytes() - before
+    return seconds, peak_bytes() - before
 
 
 def whole_audit(sizes: list[int], resamples: int = 2000) -> None:

@@ -59,7 +59,7 @@ from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import numpy as np
-from timing import best_of, whole_numbers
+from timing import best_of, peak_bytes, resident_bytes, whole_numbers
 
 GROUP_SIZE = 200
 LABELS = ("treated", "control")
@@ -246,19 +246,6 @@ def read_groups(path: Path, columns: list[str]) -> dict[str, tuple[np.ndarray, n
 # ------------------------------------------------------------------ one N, in a fresh process
 
 
-def _resident_bytes() -> int | None:
-    try:
-        with open("/proc/self/statm") as f:
-            return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
-    except (OSError, ValueError, IndexError):
-        return None
-
-
-def _peak_bytes(who=resource.RUSAGE_SELF) -> int:
-    peak = resource.getrusage(who).ru_maxrss
-    return peak if sys.platform == "darwin" else peak * 1024  # bytes on macOS, KiB elsewhere
-
-
 def bootstrap_policy():
     """The default policy with `intervals.method = "bootstrap"`: every interval of a screen row is
     then a BCa interval over the B resamples (with the default, analytic intervals, a two-group
@@ -290,12 +277,12 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
             run_screen(warmup, group="arm", resamples=100, jobs=1, out=Path(folder) / "warm",
                        policy=policy)
         gc.collect()
-        before = _resident_bytes()
-        before = _peak_bytes() if before is None else before
+        before = resident_bytes()
+        before = peak_bytes() if before is None else before
         seconds, files, skipped = _screen_timed(path, resamples, jobs, Path(folder) / "screen",
                                                 policy)
-        extra_peak = max(0, _peak_bytes() - before)  # 0: the screen stayed below the earlier peak
-        worker_peak = _peak_bytes(resource.RUSAGE_CHILDREN)
+        extra_peak = max(0, peak_bytes() - before)  # 0: the screen stayed below the earlier peak
+        worker_peak = peak_bytes(resource.RUSAGE_CHILDREN)
         rows = json.loads(files.json.read_text(encoding="utf-8"))["rows"]
         default_seconds = (_screen_timed(path, resamples, jobs, Path(folder) / "default", None)[0]
                            if default_too else None)
