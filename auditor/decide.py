@@ -298,10 +298,11 @@ def choose(result: AuditResult, policy: Policy) -> Choice:
 
 
 def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
-           rng: np.random.Generator | None = None) -> Decision:
-    """Apply `policy` to a finished audit (see the module docstring)."""
+           rng: np.random.Generator | None = None, choice: Choice | None = None) -> Decision:
+    """Apply `policy` to a finished audit (see the module docstring). `choice` is `choose`'s
+    result when the caller has it already (it does not depend on any fragility search)."""
     design = POLICY_DESIGN[result.design]
-    choice = choose(result, policy)
+    choice = choose(result, policy) if choice is None else choice
     found, branch_name, primary = choice.found, choice.branch, choice.primary
     order = policy.precedence(design)
     branch = policy.branch(design, branch_name)

@@ -240,9 +240,11 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     first, and the texts are left empty."""
     rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
                                                        spawn_key=(PERMUTATION_STREAM,)))
+    choice = None
     if work is not None:
-        result = _finish_primary(result, samples, policy, work)
-    decision = decide(result, samples, policy, digits, rng)
+        choice = choose(result, policy)
+        result = _finish_primary(result, samples, policy, work, choice.primary)
+    decision = decide(result, samples, policy, digits, rng, choice)
     labels = tuple(g.label for g in result.groups)
     if len(samples) == 1:  # participants x conditions
         x = samples[0]
@@ -260,10 +262,10 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     return dataclasses.replace(result, decision=decision)
 
 
-def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work) -> AuditResult:
+def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work,
+                    primary: str) -> AuditResult:
     """Screen scope: the chosen primary index with its bootstrap interval (when the focus left
     it out) and its fragility search."""
-    primary = choose(result, policy).primary
     spec = next(s for s in work.specs if s.name == primary)
     effect = result.effect(primary)
     if effect.estimate is None:

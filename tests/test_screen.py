@@ -847,6 +847,7 @@ def test_a_workbook_is_read_once_and_screened_like_its_csv(run_cli, write_file, 
     _screen(run_cli, csv_path, tmp_path / "text")
     book_rows = _document(tmp_path / "book", strict_json)["rows"]
     text_rows = _document(tmp_path / "text", strict_json)["rows"]
+    assert len(book_rows) == len(text_rows) == len(SORT_COLUMNS)
     for mine, theirs in zip(book_rows, text_rows):
         assert (mine["outcome"], mine["estimate"], mine["p"]) == \
             (theirs["outcome"], theirs["estimate"], theirs["p"])
