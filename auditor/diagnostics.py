@@ -13,6 +13,7 @@ import warnings
 import numpy as np
 from scipy import special, stats
 
+from auditor import anderson_darling
 from auditor.moments import sample_sd
 from auditor.results import (GroupSummary, KDiagnostics, KSpread, NormalTheoryCheck, Normality,
                              Outliers, PairedDiagnostics, Spread, Ties)
@@ -59,29 +60,6 @@ def kurtosis_se(n: int) -> float:
     return 2.0 * skewness_se(n) * math.sqrt((n * n - 1.0) / ((n - 3) * (n + 5)))
 
 
-def anderson_darling(x: np.ndarray) -> tuple[float, float]:
-    """Anderson-Darling A2 for normality with mean and SD estimated, and its approximate p.
-
-    A2 = -n - (1/n) sum_i (2i - 1) [ln Phi(z_(i)) + ln(1 - Phi(z_(n+1-i)))], z from the sample
-    mean and SD (n - 1). The p-value uses the modified statistic A2* = A2 (1 + 0.75/n + 2.25/n^2)
-    and the piecewise formulas of D'Agostino & Stephens (1986, Table 4.9).
-    """
-    n = x.size
-    z = np.sort((x - np.mean(x)) / np.std(x, ddof=1))
-    i = np.arange(1, n + 1)
-    a2 = -n - np.sum((2 * i - 1) * (special.log_ndtr(z) + special.log_ndtr(-z[::-1]))) / n
-    aa = a2 * (1 + 0.75 / n + 2.25 / n**2)
-    if aa < 0.2:
-        p = 1 - math.exp(-13.436 + 101.14 * aa - 223.73 * aa**2)
-    elif aa < 0.34:
-        p = 1 - math.exp(-8.318 + 42.796 * aa - 59.938 * aa**2)
-    elif aa < 0.6:
-        p = math.exp(0.9177 - 4.279 * aa - 1.38 * aa**2)
-    else:
-        p = math.exp(1.2937 - 5.709 * aa + 0.0186 * aa**2)
-    return float(a2), float(min(max(p, 0.0), 1.0))
-
-
 BRIEF_NOTE = "not computed in a screen (the policy's checks do not read it)"
 
 
@@ -95,7 +73,7 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
     n = int(x.size)
     notes: list[str] = []
     constant = n > 0 and bool(np.all(x == x[0]))
-    sw_w = sw_p = k2 = k2_p = a2 = a2_p = g1 = g2 = None
+    sw_w = sw_p = k2 = k2_p = a2 = a2_p = a2_method = g1 = g2 = None
     if constant:
         notes.append("all values are equal: normality tests and shape statistics are undefined")
     else:
@@ -115,14 +93,18 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
         else:
             notes.append(f"D'Agostino-Pearson needs at least {DAGOSTINO_MIN_N} values")
         if n >= 3 and not brief:
-            a2, a2_p = anderson_darling(x)
+            ad = anderson_darling.test(x)
+            a2, a2_p, a2_method = ad.statistic, ad.p_value, ad.method
+            if ad.p_is_bound:
+                notes.append(f"Anderson-Darling p is below {anderson_darling.P_FLOOR:g}"
+                             f" (A2* = {ad.modified:.4g}); the bound is reported")
         if n >= 3:
             g1 = _finite(_quiet(stats.skew, x, bias=False))
         if n >= 4:
             g2 = _finite(_quiet(stats.kurtosis, x, bias=False))
     return Normality(
         label=label, n=n, shapiro_w=sw_w, shapiro_p=sw_p, dagostino_k2=k2, dagostino_p=k2_p,
-        anderson_a2=a2, anderson_p=a2_p, skewness=g1, skewness_se=_finite(skewness_se(n)),
+        anderson_a2=a2, anderson_p=a2_p, anderson_p_method=a2_method, skewness=g1, skewness_se=_finite(skewness_se(n)),
         excess_kurtosis=g2, kurtosis_se=_finite(kurtosis_se(n)), notes=tuple(notes),
     )
 

@@ -211,7 +211,10 @@ def _wrap(text: str, width: int = 96, indent: str = "  ") -> list[str]:
 
 
 def _shape(nm) -> str:
-    return (f"  shape of {nm.label}: Shapiro-Wilk p {pval(nm.shapiro_p)},"
+    # Above Shapiro-Wilk's range (n > 5000) the Anderson-Darling p stands beside it, if computed.
+    other = ("" if nm.shapiro_p is not None or nm.anderson_p is None
+             else f" (Anderson-Darling p {pval(nm.anderson_p)})")
+    return (f"  shape of {nm.label}: Shapiro-Wilk p {pval(nm.shapiro_p)}{other},"
             f" skewness {num(nm.skewness, 2)} (SE {num(nm.skewness_se, 2)}),"
             f" excess kurtosis {num(nm.excess_kurtosis, 2)} (SE {num(nm.kurtosis_se, 2)})")
 

@@ -96,6 +96,7 @@ class Normality(_Plain):
     dagostino_p: float | None
     anderson_a2: float | None
     anderson_p: float | None
+    anderson_p_method: str | None
     skewness: float | None
     skewness_se: float | None
     excess_kurtosis: float | None
