@@ -36,6 +36,16 @@ def _finite(x: float) -> float | None:
     return x if math.isfinite(x) else None
 
 
+def _floored(p: float | None, test: str, notes: list[str]) -> float | None:
+    """A test's p that scipy returned as exactly 0 (the tail underflowed: D'Agostino-Pearson's
+    chi-square tail exp(-K2/2) does from K2 of about 1,490) is reported at the Anderson-Darling
+    floor, 1e-300, with a note: 0 would claim an impossible certainty."""
+    if p == 0.0:
+        notes.append(f"{test} p is below {anderson_darling.P_FLOOR:g}; the bound is reported")
+        return anderson_darling.P_FLOOR
+    return p
+
+
 def describe(label: str, x: np.ndarray, missing: int = 0) -> GroupSummary:
     """n, mean, SD (n - 1 denominator), median, quartiles (linear interpolation, type 7), range."""
     q1, med, q3 = np.percentile(x, [25, 50, 75])
@@ -79,7 +89,8 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
     else:
         if 3 <= n <= SHAPIRO_MAX_N:
             res = _quiet(stats.shapiro, x)
-            sw_w, sw_p = _finite(res.statistic), _finite(res.pvalue)
+            sw_w = _finite(res.statistic)
+            sw_p = _floored(_finite(res.pvalue), "Shapiro-Wilk", notes)
         elif n > SHAPIRO_MAX_N:
             notes.append(f"Shapiro-Wilk is not run above n = {SHAPIRO_MAX_N}; rely on the"
                          " other tests and on skewness and kurtosis")
@@ -89,7 +100,8 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
             notes.append(f"D'Agostino-Pearson and Anderson-Darling: {BRIEF_NOTE}")
         elif n >= DAGOSTINO_MIN_N:
             res = _quiet(stats.normaltest, x)
-            k2, k2_p = _finite(res.statistic), _finite(res.pvalue)
+            k2 = _finite(res.statistic)
+            k2_p = _floored(_finite(res.pvalue), "D'Agostino-Pearson", notes)
         else:
             notes.append(f"D'Agostino-Pearson needs at least {DAGOSTINO_MIN_N} values")
         if n >= 3 and not brief:

@@ -26,7 +26,7 @@ import math
 import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
-from scipy import integrate, optimize, special
+from scipy import integrate, optimize, special, stats
 from statsmodels.stats.diagnostic import normal_ad
 
 from auditor import anderson_darling as ad
@@ -199,3 +199,13 @@ def test_normal_sample_keeps_a_table_p():
     x = np.random.default_rng(5).normal(0, 1, 400)
     res = diagnostics.normality("g", x)
     assert res.anderson_p > 0.01 and res.anderson_p_method == ad.TABLE
+
+
+def test_underflowed_dagostino_p_is_reported_at_the_floor_with_a_note():
+    x = np.random.default_rng(11).lognormal(0, 1.5, 20000)
+    k2 = stats.normaltest(x)  # scipy: the chi-square tail exp(-K2/2) underflows to 0
+    assert k2.pvalue == 0.0
+    res = diagnostics.normality("g", x)
+    assert res.dagostino_k2 == pytest.approx(k2.statistic, rel=1e-12)
+    assert res.dagostino_p == ad.P_FLOOR
+    assert any(note.startswith("D'Agostino-Pearson p is below") for note in res.notes)
