@@ -20,6 +20,7 @@ import numpy as np
 from auditor import parametric as par
 from auditor import paired
 from auditor.moments import mean_var
+from auditor.ranks import mann_whitney_variance
 
 
 def _moments(x: np.ndarray):
@@ -185,7 +186,7 @@ def r_from_z(a, b):
         t = (np.searchsorted(pooled, x, "right") - np.searchsorted(pooled, x, "left")).astype(float)
         ties = tie_total - 3.0 * t * (t - 1.0)
         m = na + nb
-        var = na * nb / 12.0 * ((m + 1) - ties / (m * (m - 1)))
+        var = mann_whitney_variance(na, nb, ties)
         with np.errstate(divide="ignore", invalid="ignore"):
             return (u - na * nb / 2.0) / np.sqrt(var) / math.sqrt(m)
 

@@ -232,7 +232,8 @@ def generalized_eta_squared(x):
         ss_cond = m * np.sum((cond_new - grand_new[:, None]) ** 2, axis=1)
         ss_subj = k * np.maximum(m2_subj - (subj - grand) * (subj - grand_new), 0.0)
         share = np.sum((c - grand) * (c - grand_new[:, None]), axis=1)
-        ss_error = np.maximum(ss_total - share, 0.0) - ss_cond - ss_subj
+        # never below zero, so that the value stays in [0, 1] like the refit's (kgroups._rm_parts)
+        ss_error = np.maximum(np.maximum(ss_total - share, 0.0) - ss_cond - ss_subj, 0.0)
         fast = ss_cond / (ss_cond + ss_subj + ss_error)
     flagged = (share > 0.5 * ss_total) & (n > 1)
     return _with_refits((fast,), (flagged,), kgroups.generalized_eta_squared_values, (x,))

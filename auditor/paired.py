@@ -23,7 +23,7 @@ from scipy import special, stats
 
 from auditor.moments import mean_var
 from auditor.pair_sums import pair_sums
-from auditor.parametric import Estimate, noncentral_t_limits
+from auditor.parametric import Estimate, noncentral_t_limits, noncentral_t_note
 from auditor.ranks import midranks, tie_sizes
 from auditor.results import Interval
 
@@ -38,9 +38,22 @@ def difference_digits(matrix: np.ndarray, decimals: int | None) -> int:
     return 11 - int(math.floor(math.log10(top))) if top > 0 else 12
 
 
+ROUND_MAX_DIGITS = 300  # numpy rounds by multiplying by 10^digits, which overflows past 10^308
+
+
 def differences(x: np.ndarray, digits: int) -> np.ndarray:
-    """d = first - second along the pair axis, rounded to `digits` decimal places."""
-    return np.round(x[..., 0] - x[..., 1], digits)
+    """d = first - second along the pair axis, rounded to `digits` decimal places.
+
+    Range: any digits. numpy.round(d, digits) multiplies by 10^digits, which is infinite from
+    digits = 309 on (data below about 1e-297, where 12 significant digits need that many places)
+    and made every difference NaN; there the differences are first scaled by the exact
+    10^(digits - 300) and rounded to 300 places, which rounds to the same decimal grid up to one
+    rounding of the scaling (far below the 12th significant digit)."""
+    d = x[..., 0] - x[..., 1]
+    if digits <= ROUND_MAX_DIGITS:
+        return np.round(d, digits)
+    scale = 10.0 ** (digits - ROUND_MAX_DIGITS)
+    return np.round(d * scale, ROUND_MAX_DIGITS) / scale
 
 
 # ------------------------------------------------------------------ vectorised point estimates
@@ -112,8 +125,14 @@ def matched_rank_biserial_values(x, digits=12):
 
 def wilcoxon_z_values(x, digits=12):
     """Signed-rank z with zeros dropped, tie-corrected, no continuity correction:
-    z = (R+ - N(N+1)/4) / sqrt(N(N+1)(2N+1)/24 - sum(t^3 - t)/48), N = non-zero pairs."""
+    z = (R+ - N(N+1)/4) / sqrt(N(N+1)(2N+1)/24 - sum(t^3 - t)/48), N = non-zero pairs.
+
+    N is taken as a float: the count of non-zero differences is an int64, and the product
+    N(N+1)(2N+1) overflows int64 from N = 1,664,510 on (the p-value and r = z / sqrt(N) came out
+    undefined at 2 x 10^6 pairs). The variance is positive for every N >= 1, ties or not
+    (at worst, all |d| tied, it is N(N+1)^2 / 16); NaN (undefined) only when N = 0."""
     rp, _, tie_term, n = _signed_rank_parts(differences(x, digits))
+    n = np.asarray(n, dtype=float)
     var = n * (n + 1) * (2 * n + 1) / 24.0 - tie_term / 48.0
     with np.errstate(divide="ignore", invalid="ignore"):
         return (rp - n * (n + 1) / 4.0) / np.sqrt(var)
@@ -122,7 +141,7 @@ def wilcoxon_z_values(x, digits=12):
 def r_from_z_values(x, digits=12):
     """r = z / sqrt(N), N = number of non-zero differences."""
     d = differences(x, digits)
-    n = np.sum(d != 0, axis=-1)
+    n = np.sum(d != 0, axis=-1).astype(float)
     with np.errstate(divide="ignore", invalid="ignore"):
         return wilcoxon_z_values(x, digits) / np.sqrt(n)
 
@@ -182,7 +201,8 @@ def d_z(a, b, level, digits=12) -> Estimate:
         return Estimate(value, Interval("normal_approximation", value - z * se, value + z * se,
                                         level, "noncentral-t inversion failed numerically"))
     return Estimate(value, Interval("noncentral_t", limits[0] / math.sqrt(n),
-                                    limits[1] / math.sqrt(n), level))
+                                    limits[1] / math.sqrt(n), level,
+                                    noncentral_t_note(value * math.sqrt(n))))
 
 
 def _bootstrap_only(values_fn, reason: str):

@@ -19,7 +19,7 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import optimize, special, stats
+from scipy import integrate, optimize, special, stats
 
 from auditor.moments import mean_var, sample_sd
 from auditor.results import Interval
@@ -70,10 +70,57 @@ def cohen_d_values(a, b):
         return mean_difference_values(a, b) / pooled_sd_values(a, b)
 
 
+HEDGES_SERIES_FROM = 15.0  # J is taken from the Stirling series at m = df/2 >= 15
+_STIRLING = (1 / 12, -1 / 360, 1 / 1260, -1 / 1680, 1 / 1188, -691 / 360360)  # B_2k / (2k(2k-1))
+
+
+def _stirling_tail(z: float) -> float:
+    """S(z) = ln Gamma(z) - [(z - 1/2) ln z - z + ln(2 pi)/2] by its asymptotic series
+    sum_k B_2k / (2k (2k - 1) z^(2k - 1)), k = 1..6 (Abramowitz & Stegun 1964, 6.1.40). The
+    first omitted term, B_14 / (182 z^13), is below 1e-17 for z >= 14.5."""
+    inv = 1.0 / z
+    inv2, power, total = inv * inv, inv, 0.0
+    for c in _STIRLING:
+        total += c * power
+        power *= inv2
+    return total
+
+
 def hedges_correction(df: float) -> float:
     """Exact small-sample factor J(df) = Gamma(df/2) / (sqrt(df/2) Gamma((df - 1)/2))
-    (Hedges 1981, eq. 6c; Hedges & Olkin 1985, p. 80)."""
-    return math.exp(special.gammaln(df / 2) - 0.5 * math.log(df / 2) - special.gammaln((df - 1) / 2))
+    (Hedges 1981, eq. 6c; Hedges & Olkin 1985, p. 80), 0 < J < 1, increasing to 1 with df.
+
+    Range: defined for df > 1 (Gamma((df - 1)/2) has its pole at df = 1, where J falls to 0);
+    NaN for df <= 1 or NaN (the caller's d is undefined there anyway: a group of one value has
+    no variance), 1 for df = inf.
+
+    Numerics. The plain log-gamma form exp(ln G(m) - ln G(m - 1/2) - ln(m)/2), m = df/2,
+    subtracts two numbers of size m ln m and loses about m ln m * 1e-16 relatively (7e-15 at
+    df = 29, 1e-9 at df = 2e6, measured against exact rational values), so it is not used. With
+    m >= 15 the Stirling expansions of both log-gammas are subtracted with their large parts
+    cancelled analytically,
+        ln J = -(m - 1) log1p(-1/(2m)) - 1/2 + S(m) - S(m - 1/2)      (S: `_stirling_tail`);
+    below, J is carried down from M = m + k >= 15 by Gamma(x + 1) = x Gamma(x):
+        J(2m) = J(2M) sqrt(M / m) prod_{j=0}^{k-1} (m + j - 1/2) / (m + j).
+    The relative error is within 1e-15 of exact rational values for every df tried (2..40 and up
+    to 100001, tests/test_numeric_ranges.py; the reference's own rounding included).
+    """
+    df = float(df)
+    if not df > 1.0:
+        return math.nan
+    if math.isinf(df):
+        return 1.0
+    m = df / 2.0
+    k = max(0, math.ceil(HEDGES_SERIES_FROM - m))
+    top = m + k
+    j = math.exp(-(top - 1.0) * math.log1p(-0.5 / top) - 0.5
+                 + (_stirling_tail(top) - _stirling_tail(top - 0.5)))
+    if k:
+        factor = 1.0
+        for i in range(k):
+            factor *= (m + i - 0.5) / (m + i)
+        j *= math.sqrt(top / m) * factor
+    return j
 
 
 def hedges_g_values(a, b):
@@ -140,55 +187,148 @@ def robust_d_values(a, b):
 # ------------------------------------------------------------------ estimates with intervals
 
 
+def welch_df(va: float, na: int, vb: float, nb: int) -> float:
+    """Welch-Satterthwaite degrees of freedom
+    nu = (w_A + w_B)^2 / (w_A^2 / (n_A - 1) + w_B^2 / (n_B - 1)), w = s^2 / n
+    (Welch 1947; Satterthwaite 1946).
+
+    Range: min(n_A, n_B) - 1 <= nu <= n_A + n_B - 2; with one variance zero nu is the other
+    group's n - 1 (the limit of the formula). The weights are divided by the larger one first, so
+    squares of very small or very large variances (data near 1e-140 or 1e+140) neither underflow
+    to 0/0 nor overflow (variances themselves underflow below data of about 1e-154: a gap). NaN
+    when both variances are zero (no standard error) or a group has fewer than two values.
+    """
+    top = max(va / na, vb / nb) if na > 1 and nb > 1 else math.nan
+    if not (top > 0 and math.isfinite(top)):
+        return math.nan
+    ra, rb = (va / na) / top, (vb / nb) / top
+    return (ra + rb) ** 2 / (ra * ra / (na - 1) + rb * rb / (nb - 1))
+
+
 def mean_difference(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     """mean_A - mean_B with the Welch interval: diff +- t(level; nu) sqrt(s_A^2/n_A + s_B^2/n_B),
-    nu by Welch-Satterthwaite. Assumes independent observations; not equal variances."""
+    nu by Welch-Satterthwaite (`welch_df`). Assumes independent observations; not equal
+    variances. No interval when both groups are constant, or when the variances overflow double
+    precision (|values| beyond about 1e154)."""
     ma, va, na = mean_var(a)
     mb, vb, nb = mean_var(b)
     diff = float(ma - mb)
+    va, vb = float(va), float(vb)
     se2 = va / na + vb / nb
     if se2 == 0:
         return Estimate(diff, None, None, ("both groups are constant: no interval",))
-    nu = se2**2 / ((va / na) ** 2 / (na - 1) + (vb / nb) ** 2 / (nb - 1))
+    nu = welch_df(va, na, vb, nb)
+    if not (math.isfinite(se2) and math.isfinite(nu)):
+        return Estimate(diff, None, None, ("the variances overflow double precision: no"
+                                           " interval",))
     h = special.stdtrit(nu, 0.5 + level / 2) * math.sqrt(se2)
     return Estimate(diff, Interval("welch_t", diff - h, diff + h, level))
+
+
+NCT_LIBRARY_MAX_T = 2000.0  # |t| up to which scipy's noncentral-t distribution function is used
+_Z_REACH = 9.0  # the standard normal mass beyond +-9 is below 1e-18
+_CHI_QUANTILES = (1e-15, 1e-9, 1e-5, 1e-3, 0.02, 0.1, 0.3, 0.5, 0.7, 0.9, 0.98, 1 - 1e-3, 1 - 1e-5,
+                  1 - 1e-9, 1 - 1e-15)
+
+
+def _nct_cdf_by_quadrature(t: float, df: float, ncp: float) -> float:
+    """P(T <= t) for T = (Z + ncp) / sqrt(V / df), Z standard normal, V chi-squared on df, by
+    numerical integration over Z:
+
+        P(T <= t) = Phi(-ncp) + int_{-ncp}^{inf} phi(z) Q_df(df (z + ncp)^2 / t^2) dz   (t > 0),
+
+    Q_df the chi-squared upper tail (conditioning on Z; e.g. Johnson, Kotz & Balakrishnan 1995,
+    ch. 31), and P(T <= t | ncp) = 1 - P(T <= -t | -ncp) for t < 0. The integrand falls from
+    phi(z) to 0 where Q_df does, so the integration is split at the z matching fifteen chi-squared
+    quantiles (from 1e-15 to 1 - 1e-15); the interval is cut at |z| = 9. NaN when the integration
+    reports an error above 1e-11.
+    """
+    if t < 0:
+        return 1.0 - _nct_cdf_by_quadrature(-t, df, -ncp)
+    head = float(special.ndtr(-ncp))
+    low = max(-ncp, -_Z_REACH)
+    if t == 0 or low >= _Z_REACH:
+        return head
+
+    def integrand(z):
+        u = (z + ncp) / t
+        return math.exp(-0.5 * z * z) * float(special.chdtrc(df, df * u * u))
+
+    cuts = sorted({t * math.sqrt(float(special.chdtri(df, 1.0 - q)) / df) - ncp
+                   for q in _CHI_QUANTILES})
+    cuts = [c for c in cuts if low < c < _Z_REACH and math.isfinite(c)]
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")  # quadpack's accuracy notes: its error estimate is read
+        value, error = integrate.quad(integrand, low, _Z_REACH, points=cuts or None, limit=400,
+                                      epsabs=1e-15, epsrel=1e-13)
+    if not error < 1e-11:
+        return math.nan
+    return min(1.0, max(0.0, head + value / math.sqrt(2.0 * math.pi)))
+
+
+def noncentral_t_cdf(t: float, df: float, ncp: float) -> float:
+    """P(T <= t) for T noncentral t with `df` degrees of freedom and noncentrality `ncp`.
+
+    Range: scipy.special.nctdtr for |t| <= 2000 (NCT_LIBRARY_MAX_T), the numerical integration of
+    `_nct_cdf_by_quadrature` above that, and wherever nctdtr is not finite. scipy 1.17's nctdtr
+    returns NaN once |ncp| exceeds about 1.01e5 and drifts by up to 1e-6 from the integral for
+    |t| >= 1e4 (measured against the integral written two ways, over z and over the chi-squared
+    variable, which agree with each other to 1e-14; below |t| = 2000 nctdtr is within 1e-11 of
+    them for df <= 1e5, within 1e-8 up to df = 1e12). NaN when both fail.
+    """
+    if abs(t) <= NCT_LIBRARY_MAX_T:
+        with np.errstate(all="ignore"):
+            value = float(special.nctdtr(df, ncp, t))
+        if math.isfinite(value):
+            return value
+    return _nct_cdf_by_quadrature(t, df, ncp)
 
 
 def noncentral_t_limits(t_obs: float, df: float, level: float) -> tuple[float, float] | None:
     """Noncentrality parameters (lo, hi) with P(T <= t_obs | lo) = (1 + level)/2 and
     P(T <= t_obs | hi) = (1 - level)/2 for T noncentral t with `df` degrees of freedom
-    (Steiger & Fouladi 1997, confidence-interval inversion).
+    (Steiger & Fouladi 1997, confidence-interval inversion), the distribution function from
+    `noncentral_t_cdf`.
 
     Each root is bracketed by stepping outward from t_obs in half-SE steps (SE of t under the
     normal approximation, sqrt(1 + t^2 / (2 df))), so the distribution function is only evaluated
-    near the root, where it is accurate. None when no bracket is found or the distribution
-    function fails numerically (very large |t| or df).
+    near the root. Range: any finite t_obs and df >= 1 (tested up to |t| = 1e6 and df = 1e12).
+    None when t_obs or df is outside that range, no bracket is found within 40 SE or the
+    distribution function fails numerically; the caller then says which approximation it uses.
     """
+    if not (math.isfinite(t_obs) and math.isfinite(df) and df >= 1.0 and 0.0 < level < 1.0):
+        return None
     step = 0.5 * math.sqrt(1.0 + t_obs * t_obs / (2.0 * df))
     limits = []
-    with np.errstate(all="ignore"), warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        for target, direction in ((0.5 + level / 2, -1.0), (0.5 - level / 2, 1.0)):
-            f = lambda ncp, tgt=target: special.nctdtr(df, ncp, t_obs) - tgt  # noqa: E731
-            prev, f_prev = t_obs, f(t_obs)
-            bracket = None
-            for i in range(1, 81):
-                x = t_obs + direction * step * i
-                fx = f(x)
-                if not (np.isfinite(f_prev) and np.isfinite(fx)):
-                    return None
-                if f_prev * fx <= 0:
-                    bracket = (min(prev, x), max(prev, x))
-                    break
-                prev, f_prev = x, fx
-            if bracket is None:
+    for target, direction in ((0.5 + level / 2, -1.0), (0.5 - level / 2, 1.0)):
+        f = lambda ncp, tgt=target: noncentral_t_cdf(t_obs, df, ncp) - tgt  # noqa: E731
+        prev, f_prev = t_obs, f(t_obs)
+        bracket = None
+        for i in range(1, 81):
+            x = t_obs + direction * step * i
+            fx = f(x)
+            if not (math.isfinite(f_prev) and math.isfinite(fx)):
                 return None
-            try:
-                root = optimize.brentq(f, *bracket, xtol=1e-12, rtol=1e-12, maxiter=200)
-            except (ValueError, RuntimeError):
-                return None
-            limits.append(root)
+            if f_prev * fx <= 0:
+                bracket = (min(prev, x), max(prev, x))
+                break
+            prev, f_prev = x, fx
+        if bracket is None:
+            return None
+        try:
+            root = optimize.brentq(f, *bracket, xtol=1e-12, rtol=1e-12, maxiter=200)
+        except (ValueError, RuntimeError):
+            return None
+        limits.append(root)
     return limits[0], limits[1]
+
+
+def noncentral_t_note(t_obs: float) -> str | None:
+    """The interval's note when `noncentral_t_limits` integrated the distribution numerically."""
+    if abs(t_obs) > NCT_LIBRARY_MAX_T:
+        return (f"|t| = {abs(t_obs):.4g} > {NCT_LIBRARY_MAX_T:g}: noncentral-t distribution"
+                " function by numerical integration")
+    return None
 
 
 def _d_normal_se(d: float, na: int, nb: int) -> float:
@@ -212,7 +352,8 @@ def cohen_d(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     scale = math.sqrt(na * nb / (na + nb))
     limits = noncentral_t_limits(d * scale, na + nb - 2, level)
     if limits is not None:
-        return Estimate(d, Interval("noncentral_t", limits[0] / scale, limits[1] / scale, level))
+        return Estimate(d, Interval("noncentral_t", limits[0] / scale, limits[1] / scale, level,
+                                    noncentral_t_note(d * scale)))
     z = special.ndtri(0.5 + level / 2)
     se = _d_normal_se(d, na, nb)
     return Estimate(d, Interval("normal_approximation", d - z * se, d + z * se, level,

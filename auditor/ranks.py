@@ -96,16 +96,33 @@ def rank_biserial_values(a, b):
     return cliff_delta_values(a, b)
 
 
+def mann_whitney_variance(na: int, nb: int, tie_term):
+    """Null variance of U with the tie correction,
+    sigma_U^2 = n_A n_B / 12 [(N + 1) - sum(t^3 - t) / (N (N - 1))] (Lehmann 1975, eq. 1.52),
+    `tie_term` = sum over tie blocks of t^3 - t (a float or an array of them).
+
+    Every product is formed in floating point from Python integers (no int64 overflow at any N).
+    The bracket is at least 3 unless every value is tied (3 when one value differs from N - 1
+    equal ones), so a bracket below 1.5 is rounding error of the tie sum (possible once N^3
+    exceeds 2^53, N above about 208,000) and the variance is then exactly 0: every value tied,
+    z undefined. With heavy ties the bracket loses about 1e-16 N^3 / (its value x N^2) of
+    relative precision (below 1e-9 at N = 2 x 10^6)."""
+    n = na + nb
+    bracket = (n + 1) - np.asarray(tie_term, dtype=float) / (float(n) * (n - 1))
+    return float(na) * nb / 12.0 * np.where(bracket < 1.5, 0.0, bracket)
+
+
 def mann_whitney_z_values(a, b):
     """z = (U_A - n_A n_B / 2) / sigma_U with the tie-corrected
     sigma_U^2 = n_A n_B / 12 [(N + 1) - sum(t^3 - t) / (N (N - 1))], no continuity correction
-    (Lehmann 1975, eq. 1.52 for the tie correction)."""
+    (Lehmann 1975, eq. 1.52 for the tie correction; `mann_whitney_variance`). NaN (undefined)
+    when every value is tied. U is a sum of mid-ranks, multiples of 1/2, so it is exact while
+    N^2 < 2^52 (N up to about 6 x 10^7)."""
     na, nb = a.shape[-1], b.shape[-1]
-    n = na + nb
     pooled = np.concatenate([a, b], axis=-1)
     t = tie_sizes(pooled).astype(float)
     tie_term = np.sum(t * t - 1.0, axis=-1)  # sum over values of (t^2 - 1) = sum over blocks (t^3 - t)
-    var = na * nb / 12.0 * ((n + 1) - tie_term / (n * (n - 1)))
+    var = mann_whitney_variance(na, nb, tie_term)
     with np.errstate(divide="ignore", invalid="ignore"):
         return (superiority_count_values(a, b) - na * nb / 2.0) / np.sqrt(var)
 
@@ -243,8 +260,18 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
       df = (S_A^2/(n_A n_B^2) + S_B^2/(n_B n_A^2))^2 /
            [(S_A^2/(n_A n_B^2))^2/(n_A - 1) + (S_B^2/(n_B n_A^2))^2/(n_B - 1)]
     (Brunner & Munzel 2000, eqs. 4.4-4.6; Neubert & Brunner 2007).
+
+    Range: 0 <= A-hat <= 1 and, when the variance is positive, min(n_A, n_B) - 1 <= df <=
+    n_A + n_B - 2 (a Satterthwaite form, as `parametric.welch_df`). The variance is zero, and df
+    NaN (undefined), under complete separation (every placement of A is 0 or every one is n_B)
+    and whenever the placements vary in neither group; with one group's placements constant df
+    is the other group's n - 1. A group of fewer than two values gives NaN variance and df. The
+    placements are multiples of 1/2, so their variances are exact zeros when constant.
     """
     na, nb = a.size, b.size
+    if na < 2 or nb < 2:
+        return (float(np.mean(_placements_of(a, b))) / nb if na and nb else math.nan,
+                math.nan, math.nan)
     pooled = midranks(np.concatenate([a, b]))
     pa = pooled[:na] - midranks(a)
     pb = pooled[na:] - midranks(b)
@@ -252,8 +279,17 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     va = float(np.var(pa, ddof=1)) / (na * nb * nb)
     vb = float(np.var(pb, ddof=1)) / (nb * na * na)
     var = va + vb
-    df = var**2 / (va**2 / (na - 1) + vb**2 / (nb - 1)) if var > 0 else math.nan
-    return a_hat, var, df
+    if not var > 0:
+        return a_hat, var, math.nan
+    ra, rb = va / max(va, vb), vb / max(va, vb)  # scaled as in welch_df: no underflow of squares
+    return a_hat, var, (ra + rb) ** 2 / (ra * ra / (na - 1) + rb * rb / (nb - 1))
+
+
+def _placements_of(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """#(b < a_i) + #(b = a_i) / 2 for each a_i."""
+    sb = np.sort(b)
+    lo, hi = np.searchsorted(sb, a, side="left"), np.searchsorted(sb, a, side="right")
+    return lo + 0.5 * (hi - lo)
 
 
 def _bounded(method: str, est: float, half: float, level: float, lo: float, hi: float) -> Interval:
@@ -272,6 +308,8 @@ def prob_superiority(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     Munzel 2000). When the groups do not overlap the variance estimate is zero and the interval
     is undefined (null with a reason)."""
     a_hat, var, df = _brunner_munzel_parts(a, b)
+    if math.isnan(var):
+        return Estimate(a_hat, None, None, ("no interval: a group has fewer than two values",))
     if var <= 0:
         return Estimate(a_hat, None, None, (
             "no interval: the Brunner-Munzel variance is zero (the groups do not overlap or all"
@@ -384,7 +422,7 @@ def r_from_z_counts(a, b):
     n = na + nb
 
     def statistic(ca, cb):
-        var = na * nb / 12.0 * ((n + 1) - tie_term(ca, cb) / (n * (n - 1)))
+        var = mann_whitney_variance(na, nb, tie_term(ca, cb))
         with np.errstate(divide="ignore", invalid="ignore"):
             return (u(ca, cb) - na * nb / 2.0) / np.sqrt(var) / math.sqrt(n)
     return statistic

@@ -28,9 +28,10 @@ from dataclasses import dataclass, field
 from functools import partial
 
 import numpy as np
-from scipy import stats
+from scipy import special, stats
 
 from auditor import kgroups, paired, parametric, ranks, resampling
+from auditor.moments import mean_var
 from auditor.results import _Plain
 
 COMPARES = ("means", "ranks", "signs")
@@ -128,12 +129,36 @@ def _check_permutations(permutations) -> int:
     return int(permutations)
 
 
-def _permutation_method(distinct: int, permutations: int) -> tuple[bool, str]:
+def _capped_comb(n: int, k: int, cap: int) -> int:
+    """min(C(n, k), cap + 1), by the product C = prod_i (n - k + i) / i, stopped once it passes
+    `cap`: the full C(2 x 10^6, 10^6) would take tens of seconds and has 600,000 digits, which
+    Python 3.11 refuses to print beyond 4,300 digits (ValueError)."""
+    k = min(k, n - k)
+    count = 1
+    for i in range(1, k + 1):
+        count = count * (n - k + i) // i
+        if count > cap:
+            return cap + 1
+    return count
+
+
+def _log10_comb(n: int, k: int) -> float:
+    return (math.lgamma(n + 1) - math.lgamma(k + 1) - math.lgamma(n - k + 1)) / math.log(10)
+
+
+def _permutation_method(distinct: int, permutations: int,
+                        log10_distinct: float | None = None) -> tuple[bool, str]:
     """Exact enumeration when the distinct rearrangements are no more than the resamples asked for
-    (scipy.stats.permutation_test makes the same choice), else random rearrangements."""
+    (scipy.stats.permutation_test makes the same choice), else random rearrangements. `distinct`
+    may be capped (`_capped_comb`); beyond 10^15 the count is written as a power of ten from
+    `log10_distinct`, never as a long integer."""
     if distinct <= permutations:
         return True, f"exact: all {distinct} distinct rearrangements"
-    return False, (f"{permutations} random rearrangements of {distinct} possible;"
+    if log10_distinct is not None and log10_distinct >= 15:
+        possible = f"about 10^{log10_distinct:.1f}"
+    else:
+        possible = f"{distinct}"
+    return False, (f"{permutations} random rearrangements of {possible} possible;"
                    " p = (count at least as extreme + 1) / (rearrangements + 1)")
 
 
@@ -184,10 +209,18 @@ def welch_t(a, b) -> TestResult:
         reason = "no variation within either group: the standard error is zero"
     if reason:
         return make(reason=reason)
+    # t, df and p computed here (the same numbers as scipy.stats.ttest_ind(equal_var=False) to
+    # rounding): scipy squares s^2 / n, which underflows to 0/0 for data near 1e-140, and then
+    # silently puts df = 1 (scipy 1.17); it also flags an exactly constant group as a precision
+    # loss. `parametric.welch_df` scales before squaring (range: see there).
     notes: list[str] = []
-    with _library_call(notes):
-        res = stats.ttest_ind(a, b, equal_var=False)
-    return make(statistic=res.statistic, df=float(res.df), p=res.pvalue, notes=notes,
+    va, vb = float(mean_var(a)[1]), float(mean_var(b)[1])
+    with np.errstate(all="ignore"):
+        statistic = float(parametric.mean_difference_values(a, b)) / math.sqrt(
+            va / a.size + vb / b.size)
+    df = parametric.welch_df(va, a.size, vb, b.size)
+    p = float(2.0 * special.stdtr(df, -abs(statistic))) if math.isfinite(df) else math.nan
+    return make(statistic=statistic, df=df, p=p, notes=notes,
                 details={"n": [int(a.size), int(b.size)],
                          "mean_difference": float(parametric.mean_difference_values(a, b))})
 
@@ -281,13 +314,17 @@ def permutation_mean_difference(a, b, *, rng, permutations: int = 9999) -> TestR
     rng = _check_rng(rng)
     permutations = _check_permutations(permutations)
     a, b = _vector(a, "group a"), _vector(b, "group b")
-    distinct = math.comb(a.size + b.size, a.size)
-    exact, method = _permutation_method(distinct, permutations)
+    distinct = _capped_comb(a.size + b.size, a.size, max(permutations, 10**15))
+    exact, method = _permutation_method(distinct, permutations,
+                                        _log10_comb(a.size + b.size, a.size))
     make = partial(_outcome, "permutation_mean", "Permutation test of the mean difference",
                    "means", "mean difference", method)
     reason = _not_finite(a, b)
     if reason is None and (a.size < 1 or b.size < 1):
         reason = "too few values: each group needs at least one"
+    if reason is None and (a.size < 2 or b.size < 2):
+        # scipy.stats.permutation_test refuses a sample of one value (ValueError)
+        reason = "too few values: the permutation routine needs at least two in each group"
     if reason:
         return make(reason=reason)
     notes: list[str] = []
@@ -451,13 +488,15 @@ def sign_flip_mean(x, *, rng, permutations: int = 9999, digits: int = 12) -> Tes
     rng = _check_rng(rng)
     permutations = _check_permutations(permutations)
     x = _matrix(x, 2, "paired data x")
-    distinct = 2 ** x.shape[0]
-    exact, method = _permutation_method(distinct, permutations)
+    # capped: for large n, 2^n only needs to exceed the resamples asked for (and 10^15)
+    distinct = 2 ** min(x.shape[0], max(64, permutations.bit_length() + 1))
+    exact, method = _permutation_method(distinct, permutations, x.shape[0] * math.log10(2))
     make = partial(_outcome, "permutation_mean", "Sign-flip permutation test of the mean"
                    " difference", "means", "mean difference", method)
     reason = _not_finite(x)
-    if reason is None and x.shape[0] < 1:
-        reason = "too few pairs: at least one is needed"
+    if reason is None and x.shape[0] < 2:
+        # scipy.stats.permutation_test refuses a sample of one value (ValueError)
+        reason = "too few pairs: at least two are needed"
     if reason:
         return make(reason=reason)
     d = paired.differences(x, digits)
@@ -536,7 +575,9 @@ def welch_anova(*groups) -> TestResult:
 
 def kruskal_wallis(*groups) -> TestResult:
     """Kruskal-Wallis H on the pooled mid-ranks, tie-corrected, referred to chi-squared with k - 1
-    df (Kruskal & Wallis 1952; scipy.stats.kruskal; the H of `kgroups.kruskal_h_values`).
+    df (Kruskal & Wallis 1952; `kgroups.kruskal_wallis`, the H of `kgroups.kruskal_h_values`,
+    equal to scipy.stats.kruskal's to rounding but in the centred form, which keeps its precision
+    at millions of values where scipy's loses digits to cancellation).
 
     Assumes independent observations; a small p says at least one group tends to give larger or
     smaller values than the others. The chi-squared approximation wants about five or more values
@@ -556,8 +597,10 @@ def kruskal_wallis(*groups) -> TestResult:
     if min(g.size for g in groups) < 5:
         notes.append("a group has fewer than five values: the chi-squared approximation is rough")
     with _library_call(notes):
-        res = stats.kruskal(*groups)
-    return make(statistic=res.statistic, df=float(len(groups) - 1), p=res.pvalue, notes=notes,
+        res = kgroups.kruskal_wallis(groups)
+    if res["statistic"] is None:
+        return make(reason=res["reason"])
+    return make(statistic=res["statistic"], df=float(len(groups) - 1), p=res["p"], notes=notes,
                 details={"n": [int(g.size) for g in groups]})
 
 
