@@ -96,10 +96,17 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
                          " other tests and on skewness and kurtosis")
         else:
             notes.append("Shapiro-Wilk needs at least 3 values")
+        # Skewness, kurtosis and K2 are scale-free; scipy forms third and fourth powers of the
+        # data, which under- or overflow near 1e-150 or 1e+150, so they are computed on the
+        # data centred on the median and scaled by the largest distance from it.
+        with np.errstate(all="ignore"):
+            centre = float(np.median(x))
+            reach = float(np.max(np.abs(x - centre)))
+        shape_x = (x - centre) / reach if 0 < reach < math.inf else x
         if brief:
             notes.append(f"D'Agostino-Pearson and Anderson-Darling: {BRIEF_NOTE}")
         elif n >= DAGOSTINO_MIN_N:
-            res = _quiet(stats.normaltest, x)
+            res = _quiet(stats.normaltest, shape_x)
             k2 = _finite(res.statistic)
             k2_p = _floored(_finite(res.pvalue), "D'Agostino-Pearson", notes)
         else:
@@ -111,9 +118,9 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
                 notes.append(f"Anderson-Darling p is below {anderson_darling.P_FLOOR:g}"
                              f" (A2* = {ad.modified:.4g}); the bound is reported")
         if n >= 3:
-            g1 = _finite(_quiet(stats.skew, x, bias=False))
+            g1 = _finite(_quiet(stats.skew, shape_x, bias=False))
         if n >= 4:
-            g2 = _finite(_quiet(stats.kurtosis, x, bias=False))
+            g2 = _finite(_quiet(stats.kurtosis, shape_x, bias=False))
     return Normality(
         label=label, n=n, shapiro_w=sw_w, shapiro_p=sw_p, dagostino_k2=k2, dagostino_p=k2_p,
         anderson_a2=a2, anderson_p=a2_p, anderson_p_method=a2_method, skewness=g1, skewness_se=_finite(skewness_se(n)),
@@ -180,6 +187,10 @@ def ties(label: str, x: np.ndarray) -> Ties:
     tied = int(counts[counts > 1].sum())
     t = counts.astype(float)
     correction = 1.0 - float(np.sum(t**3 - t)) / (float(n) ** 3 - n) if n > 1 else 1.0
+    # The smallest correction of data not all tied is 3 / (n + 1) (one value apart from n - 1
+    # equal ones); below 1.5 / (n + 1) it is rounding error of the float sum: every value tied.
+    if n > 1 and correction < 1.5 / (n + 1):
+        correction = 0.0
     return Ties(
         label=label, n=n, tie_fraction=tied / n if n else 0.0, distinct_values=int(counts.size),
         largest_tie_block=int(counts.max()) if n else 0, tie_correction=correction,
