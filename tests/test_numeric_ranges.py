@@ -684,3 +684,28 @@ def test_tie_correction_of_the_diagnostics_near_all_tied():
     c = diagnostics.ties("x", x).tie_correction
     assert c == pytest.approx(stats.tiecorrect(stats.rankdata(x)), rel=1e-6)
     assert c == pytest.approx(3.0 / (n + 1), rel=1e-6)
+
+
+@pytest.mark.parametrize("n, decimals", [(80, None), (120, 1), (300, 2)])
+def test_paired_shift_selected_above_the_listing_limit_equals_the_median_of_all_averages(
+        n, decimals):
+    rng = np.random.default_rng(n)
+    x = rng.normal(0.2, 1.0, (3, n, 2))
+    if decimals is not None:
+        x = np.round(x, decimals)
+    assert n * (n + 1) // 2 > paired.WALSH_LISTED_MAX  # the selecting branch
+    got = paired.hodges_lehmann_values(x)
+    for row, value in zip(x, got):
+        d = paired.differences(row, 12)
+        i, j = np.triu_indices(n)  # numpy: the plain median of every Walsh average
+        assert value == pytest.approx(float(np.median((d[i] + d[j]) / 2.0)), rel=1e-15, abs=1e-15)
+
+
+@pytest.mark.slow
+def test_paired_shift_at_50000_pairs_stays_linear_in_memory():
+    # Listing the 1.25e9 Walsh averages needed 9.3 GiB; selection needs O(n).
+    x = np.random.default_rng(7).exponential(1.0, (50_000, 2))
+    value = paired.hodges_lehmann_values(x)
+    est = paired.hodges_lehmann(x[:, 0], x[:, 1], 0.95)
+    assert value == est.estimate
+    assert est.interval.low <= value <= est.interval.high
