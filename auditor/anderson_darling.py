@@ -27,6 +27,7 @@ replaces.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -88,6 +89,8 @@ EIGENVALUES = (
 )
 REST = 0.023349332171815673  # trace 0.3844268602991499 less the kept eigenvalues
 
+_LAMBDA = np.asarray(EIGENVALUES)
+
 
 @dataclass(frozen=True)
 class AndersonDarling:
@@ -146,7 +149,7 @@ def _cumulants(s: float) -> tuple[float, float, float, float]:
     2 sum lambda_j^2, is below 1e-5). With this change of variable 1 - 2 t lambda_j is computed
     as (1 - r_j) + exp(-s) r_j, r_j = lambda_j / lambda_1, which keeps its precision when t nears
     the pole 1/(2 lambda_1) (large x)."""
-    lam = np.asarray(EIGENVALUES)
+    lam = _LAMBDA
     r = lam / lam[0]
     e = math.exp(-s)
     v = (1.0 - r) + e * r
@@ -185,10 +188,19 @@ def p_value(a_star: float) -> tuple[float, str, bool]:
         return P_FLOOR, FLOOR, True
     if a_star <= TABLE_LIMIT:
         return _table_p(a_star), TABLE, False
-    log_p = (math.log(_table_p(TABLE_LIMIT)) + _log_tail(a_star) - _log_tail(TABLE_LIMIT))
+    at_limit, log_scale = _junction()
+    log_p = log_scale + _log_tail(a_star)
     if log_p < math.log(P_FLOOR):
         return P_FLOOR, FLOOR, True
-    return min(math.exp(log_p), _table_p(TABLE_LIMIT)), TAIL, False
+    return min(math.exp(log_p), at_limit), TAIL, False
+
+
+@functools.lru_cache(maxsize=1)
+def _junction() -> tuple[float, float]:
+    """(p at TABLE_LIMIT from the table, ln of the scale that makes the tail meet it there):
+    constants, computed once."""
+    at_limit = _table_p(TABLE_LIMIT)
+    return at_limit, math.log(at_limit) - _log_tail(TABLE_LIMIT)
 
 
 def test(x: np.ndarray) -> AndersonDarling:

@@ -198,10 +198,18 @@ def welch_df(va: float, na: int, vb: float, nb: int) -> float:
     to 0/0 nor overflow (variances themselves underflow below data of about 1e-154: a gap). NaN
     when both variances are zero (no standard error) or a group has fewer than two values.
     """
-    top = max(va / na, vb / nb) if na > 1 and nb > 1 else math.nan
+    return satterthwaite_df(va / na, na, vb / nb, nb)
+
+
+def satterthwaite_df(wa: float, na: int, wb: float, nb: int) -> float:
+    """(w_A + w_B)^2 / (w_A^2 / (n_A - 1) + w_B^2 / (n_B - 1)) for variance parts w_A, w_B,
+    with the parts divided by the larger first (no underflow or overflow of the squares). NaN
+    when both parts are zero or not finite, or a group has fewer than two values. Shared by
+    Welch's df and the Brunner-Munzel df."""
+    top = max(wa, wb) if na > 1 and nb > 1 else math.nan
     if not (top > 0 and math.isfinite(top)):
         return math.nan
-    ra, rb = (va / na) / top, (vb / nb) / top
+    ra, rb = wa / top, wb / top
     return (ra + rb) ** 2 / (ra * ra / (na - 1) + rb * rb / (nb - 1))
 
 

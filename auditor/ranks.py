@@ -22,7 +22,7 @@ import numpy as np
 from scipy import special, stats
 
 from auditor.pair_sums import pair_sums
-from auditor.parametric import Estimate
+from auditor.parametric import Estimate, satterthwaite_df
 from auditor.results import Interval
 
 EXACT_MAX_PAIRS = 2500  # exact Mann-Whitney null distribution up to n_A n_B = 2500, no ties
@@ -281,8 +281,7 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     var = va + vb
     if not var > 0:
         return a_hat, var, math.nan
-    ra, rb = va / max(va, vb), vb / max(va, vb)  # scaled as in welch_df: no underflow of squares
-    return a_hat, var, (ra + rb) ** 2 / (ra * ra / (na - 1) + rb * rb / (nb - 1))
+    return a_hat, var, satterthwaite_df(va, na, vb, nb)
 
 
 def _placements_of(a: np.ndarray, b: np.ndarray) -> np.ndarray:
