@@ -85,6 +85,10 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--out", metavar="DIR", nargs="?", const="",
                        help="write report.html, report.md, audit.json and the figures into DIR"
                             " (--out alone: reports/<outcome>/)")
+    check.add_argument("--coverage-check", action="store_true", default=None,
+                       help="estimate how often the primary index's interval covers its true"
+                            " value in populations shaped like these data (smoothed bootstrap;"
+                            " a few seconds; default: the policy's intervals.coverage_check)")
     check.add_argument("--quiet", action="store_true", help="do not print the summary")
     check.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                        help="show the full traceback if an internal error occurs")
@@ -248,6 +252,7 @@ def _check(args) -> int:
             subject=args.subject, paired_columns=args.paired,
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
+            coverage_check=args.coverage_check,
         )
     document = to_json(result)
     if args.out is not None:

@@ -17,6 +17,7 @@ import numpy as np
 from scipy import special
 
 from auditor import significance
+from auditor.agreement import MATCHED, agrees, matched_method
 from auditor.magnitude import magnitude_label
 from auditor.policy import DESIGNS, INDICES, Policy
 from auditor.results import AuditResult, Effect, _Plain, plain
@@ -263,6 +264,43 @@ def quoted_interval(effect: Effect, method: str) -> dict:
     return {"method": iv.method, "low": iv.low, "high": iv.high, "level": iv.level}
 
 
+def interval_with_test(effect: Effect, design: str, test_name: str, test: dict, policy: Policy,
+                       level: float) -> tuple[dict, list[str]]:
+    """The primary index's quoted interval, squared with the reported test.
+
+    With the policy's `intervals.match_test`, the interval of the index that agrees with the test
+    by construction (`agreement.MATCHED`) is quoted when the index has one; the interval the
+    policy's `intervals.method` alone would quote is kept under `instead_of`, with whether it
+    would have agreed. `agrees_with_test` says whether the quoted interval excludes the no-effect
+    value exactly when the test's p is below 1 - level (null when either is undefined). Returns
+    the interval record and notes for the decision."""
+    own = quoted_interval(effect, policy.settings["intervals"]["method"])
+    if design not in MATCHED:  # omnibus designs: a two-sided interval and the F or chi-squared
+        return own, []  # test answer different questions (Steiger 2004): no agreement is claimed
+    p = test.get("p")
+    notes = []
+    out = dict(own)
+    wanted = matched_method(design, test_name, effect.name)
+    matched = effect.interval(wanted) if wanted else None
+    if policy.settings["intervals"].get("match_test", False) and matched is not None:
+        out = {"method": matched.method, "low": matched.low, "high": matched.high,
+               "level": matched.level, "matched_to_test": test_name}
+        if own["method"] != matched.method:
+            own_agrees = agrees(own["low"], own["high"], effect.null_value, p, level)
+            out["instead_of"] = {**own, "agrees_with_test": own_agrees}
+            if own_agrees is False:
+                notes.append(f"the {own['method']} interval of {effect.name} would have"
+                             f" contradicted the {test.get('label', test.get('name'))}; the"
+                             f" {matched.method} interval, which agrees with it by construction,"
+                             " is quoted instead")
+    out["agrees_with_test"] = agrees(out["low"], out["high"], effect.null_value, p, level)
+    if out["agrees_with_test"] is False:
+        notes.append(f"the quoted {out['method']} interval of {effect.name} and the"
+                     f" {test.get('label', test.get('name'))} disagree: no interval of this index"
+                     " agrees with that test by construction; read the two together")
+    return out, notes
+
+
 @dataclass(frozen=True)
 class Choice:
     """The branch the checks select and the index it reports as primary."""
@@ -312,8 +350,16 @@ def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
     benchmarks = policy.benchmarks()
     magnitude = {name: magnitude_label(name, effects[name].estimate, benchmarks)
                  for name in (primary, *also)}
-    test = significance.run_test(design, branch.test, samples,
-                                 digits=digits, rng=rng)
+    test_name = branch.test
+    test = significance.run_test(design, test_name, samples, digits=digits, rng=rng)
+    if test_name == "brunner_munzel" and test.p is None and test.details.get(
+            "prob_superiority") in (0.0, 1.0):
+        # complete separation: the Brunner-Munzel variance is zero; the Mann-Whitney test, which
+        # compares the same ranks, is defined (its exact p is the smallest attainable)
+        test_name = "mann_whitney"
+        notes.append(f"the Brunner-Munzel test is undefined here ({test.reason}); the"
+                     " Mann-Whitney test of the same ranks is reported instead")
+        test = significance.run_test(design, test_name, samples, digits=digits, rng=rng)
     why = ("every check passed" if branch_name == "assumptions_hold"
            else f"{branch_name.replace('_', ' ')} fired: {found[branch_name].effect}")
     test_doc = plain(test)
@@ -333,10 +379,12 @@ def decide(result: AuditResult, samples, policy: Policy, digits: int = 12,
                 "the conclusion rests on a few cases" if fragile
                 else "no small set of cases overturns the interval"),)
     rank_like = INDICES[design][primary] in ("ranks", "signs")
+    interval, interval_notes = interval_with_test(effects[primary], design, test_name, test_doc,
+                                                  policy, result.settings.level)
     return Decision(
         branch=branch_name, primary=primary, also_report=also,
-        interval=quoted_interval(effects[primary], policy.settings["intervals"]["method"]),
+        interval=interval,
         test=test_doc, reasons=reasons, magnitude=magnitude,
         descriptives="median_iqr_range" if rank_like else "mean_sd", fragile=fragile,
-        notes=tuple(notes),
+        notes=tuple(notes + interval_notes),
     )

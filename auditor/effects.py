@@ -12,6 +12,7 @@ line below. The contract tests in `tests/test_effect_contract.py` pick it up aut
 from __future__ import annotations
 
 from collections.abc import Callable
+import dataclasses
 from dataclasses import dataclass
 from functools import partial
 
@@ -21,9 +22,11 @@ from auditor import jackknife as jk
 from auditor import jackknife_omnibus as jo
 from auditor import jackknife_signed_ranks as jsr
 from auditor import shifts
-from auditor import counting, kgroups, paired, ranks
+from auditor import counting, kgroups, noncentral, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
+from auditor.signed_rank_interval import paired_extras
+from auditor.superiority_interval import dominance_extras
 
 
 @dataclass(frozen=True)
@@ -40,6 +43,21 @@ class EffectSpec:
     by_counts: Callable[..., Callable[..., np.ndarray]] | None = None  # samples -> count statistic
     # (other effect, map): bootstrap and leave-one-out values are map(other's), e.g. delta = 2A - 1
     derived_from: tuple[str, Callable[[np.ndarray], np.ndarray]] | None = None
+    # samples -> why every resample inherits a degenerate state (complete separation, differences
+    # of one sign), or None: the bootstrap interval is then withheld (`resampling.bca_interval`)
+    degenerate: Callable[..., str | None] | None = None
+
+
+def with_extras(estimate: Callable[..., Estimate], extras: Callable[..., tuple]):
+    """The estimate function with more intervals beside the index's own (`Estimate.more`):
+    `extras(*samples, level)` gives them (test-matched and boundary-valid intervals)."""
+    def combined(*samples_and_level) -> Estimate:
+        est = estimate(*samples_and_level)
+        if est.value is None:
+            return est
+        return dataclasses.replace(est, more=est.more + tuple(extras(*samples_and_level)))
+    combined.__doc__ = estimate.__doc__
+    return combined
 
 
 def _two_a_minus_one(a: np.ndarray) -> np.ndarray:
@@ -74,19 +92,25 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    par.robust_d, par.robust_d_values, jk.robust_d, counting.robust_d_counts),
         EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.prob_superiority, ranks.prob_superiority_values, jk.prob_superiority,
-                   ranks.prob_superiority_counts),
+                   with_extras(ranks.prob_superiority, dominance_extras("prob_superiority")),
+                   ranks.prob_superiority_values, jk.prob_superiority,
+                   ranks.prob_superiority_counts, degenerate=ranks.separation),
         EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.cliff_delta, ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
-                   ("prob_superiority", _two_a_minus_one)),
+                   with_extras(ranks.cliff_delta, dominance_extras("cliff_delta")),
+                   ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
+                   ("prob_superiority", _two_a_minus_one), ranks.separation),
         EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
-                   ranks.rank_biserial, ranks.rank_biserial_values, jk.rank_biserial,
-                   ranks.cliff_delta_counts, ("prob_superiority", _two_a_minus_one)),
+                   with_extras(ranks.rank_biserial, dominance_extras("rank_biserial")),
+                   ranks.rank_biserial_values, jk.rank_biserial,
+                   ranks.cliff_delta_counts, ("prob_superiority", _two_a_minus_one),
+                   ranks.separation),
         EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations; depends on N as well as on the effect",
-                   ranks.r_from_z, ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts),
+                   with_extras(ranks.r_from_z, dominance_extras("r_from_z")),
+                   ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts,
+                   degenerate=ranks.separation),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
                    ranks.hodges_lehmann, ranks.hodges_lehmann_values,
@@ -103,10 +127,14 @@ def _pair_estimate(fn, digits):
 def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
     """Effects for two conditions on the same participants; differences are rounded to `digits`
     decimal places before signs and ranks are taken (see `paired.differences`)."""
-    def spec(name, family, null, bounds, signed, assumes, est, values, fast=None):
+    def spec(name, family, null, bounds, signed, assumes, est, values, fast=None, signs=False):
+        estimate = _pair_estimate(est, digits)
+        if name in ("ps_dep", "matched_rank_biserial", "r_from_z"):
+            estimate = with_extras(estimate, paired_extras(name, digits))
         return EffectSpec(name, family, null, bounds, signed, assumes,
-                          _pair_estimate(est, digits), partial(values, digits=digits),
-                          None if fast is None else partial(fast, digits=digits))
+                          estimate, partial(values, digits=digits),
+                          None if fast is None else partial(fast, digits=digits),
+                          degenerate=partial(paired.one_signed, digits=digits) if signs else None)
     normal_d = "normally distributed differences"
     return (
         spec("mean_difference", "mean", 0.0, None, True,
@@ -126,10 +154,10 @@ def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
         spec("matched_rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
              "pairs independent; differences comparable in size (signed ranks)",
              paired.matched_rank_biserial, paired.matched_rank_biserial_values,
-             jsr.matched_rank_biserial),
+             jsr.matched_rank_biserial, signs=True),
         spec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
              "signed-rank z; depends on N as well as on the effect",
-             paired.r_from_z, paired.r_from_z_values, jsr.r_from_z),
+             paired.r_from_z, paired.r_from_z_values, jsr.r_from_z, signs=True),
         spec("hodges_lehmann", "shift", 0.0, None, True,
              "interval: differences symmetric about their centre",
              paired.hodges_lehmann, paired.hodges_lehmann_values,
@@ -149,12 +177,42 @@ def _rows_omnibus(fn):
     return estimate
 
 
+def _noncentral(point: Callable[..., Estimate], interval: Callable[..., Estimate], own: bool,
+                rows: bool = False):
+    """An omnibus estimate (`point`, from kgroups) with its noncentral-F or noncentral
+    chi-squared interval (`interval`, from noncentral.py): as the index's own interval when
+    `own`, else beside it (`Estimate.more`: the bootstrap stays the index's interval and this one
+    stands in where the bootstrap is withheld). An inversion that gives the single point 0 (the
+    statistic below its no-effect quantile) is no interval: it is dropped with its note."""
+    def estimate(*samples_and_level) -> Estimate:
+        samples, level = samples_and_level[:-1], samples_and_level[-1]
+        est = point(*samples)
+        if est.value is None:
+            return est
+        found = interval(samples[0] if rows else samples, level)
+        iv, notes = found.interval, tuple(found.notes)
+        if iv is not None and iv.high <= 0.0:
+            notes += (f"no {iv.method} interval: {iv.note}",)
+            iv = None
+        elif iv is None and found.reason:
+            notes += (f"no {interval.__name__.split('_interval')[0]} noncentral interval:"
+                      f" {found.reason}",)
+        details = {**est.details, **{k: v for k, v in found.details.items() if k != "df"}}
+        if own:
+            return dataclasses.replace(est, interval=iv, notes=est.notes + notes, details=details)
+        return dataclasses.replace(est, more=est.more + (() if iv is None else (iv,)),
+                                   notes=est.notes + notes)
+    estimate.__doc__ = point.__doc__
+    return estimate
+
+
 def k_independent_effects() -> tuple[EffectSpec, ...]:
     """Omnibus effects for three or more independent groups."""
     return (
         EffectSpec("epsilon_squared_h", "variance_explained", 0.0, (0.0, 1.0), False,
                    "independent observations (ranks only)",
-                   _omnibus(kgroups.epsilon_squared_h), kgroups.epsilon_squared_h_values,
+                   _noncentral(kgroups.epsilon_squared_h, noncentral.epsilon_squared_h_interval,
+                               own=False), kgroups.epsilon_squared_h_values,
                    jo.epsilon_squared_h),
         EffectSpec("eta_squared_h", "variance_explained", 0.0, None, False,
                    "independent observations (ranks only); can fall below zero",
@@ -162,11 +220,13 @@ def k_independent_effects() -> tuple[EffectSpec, ...]:
                    jo.eta_squared_h),
         EffectSpec("eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
                    "normal groups with equal variances; biased upward in small samples",
-                   _omnibus(kgroups.eta_squared), kgroups.eta_squared_values,
+                   _noncentral(kgroups.eta_squared, noncentral.eta_squared_interval, own=True),
+                   kgroups.eta_squared_values,
                    jo.eta_squared),
         EffectSpec("omega_squared", "variance_explained", 0.0, None, False,
                    "normal groups with equal variances; can fall below zero",
-                   _omnibus(kgroups.omega_squared), kgroups.omega_squared_values,
+                   _noncentral(kgroups.omega_squared, noncentral.omega_squared_interval,
+                               own=True), kgroups.omega_squared_values,
                    jo.omega_squared),
     )
 
@@ -176,7 +236,8 @@ def k_repeated_effects() -> tuple[EffectSpec, ...]:
     return (
         EffectSpec("kendall_w", "agreement", 0.0, (0.0, 1.0), False,
                    "participants independent of each other (ranks within participant)",
-                   _rows_omnibus(kgroups.kendall_w), kgroups.kendall_w_values, jo.kendall_w),
+                   _noncentral(kgroups.kendall_w, noncentral.kendall_w_interval, own=False,
+                               rows=True), kgroups.kendall_w_values, jo.kendall_w),
         EffectSpec("generalized_eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
                    "normal data; sphericity for the F test beside it",
                    _rows_omnibus(kgroups.generalized_eta_squared),

@@ -144,7 +144,8 @@ class Influence(_Plain):
 
     def to_dict(self):
         listed = self.listed()
-        out = {"unit": self.unit, "effects": {e.effect: plain(e) for e in self.effects},
+        out = {"unit": self.unit, "definitions": dict(FLIP_DEFINITIONS),
+               "effects": {e.effect: plain(e) for e in self.effects},
                "cases": self._cases(listed.tolist())}
         if listed.size < self.rows.size:
             out["cases_listed"] = {
@@ -153,6 +154,16 @@ class Influence(_Plain):
                         " the largest standardized change on any effect are listed, in line"
                         " order; every summary above uses all of them"}
         return out
+
+
+FLIP_DEFINITIONS = {
+    "sign_flips": "cases whose removal takes the estimate from one side of the no-effect value to"
+                  " it or beyond it; an estimate exactly at the no-effect value has no sign, so no"
+                  " removal flips it (moving it off the value is a move, not a flip)",
+    "interval_flips": "cases whose removal changes whether the interval contains the no-effect"
+                      " value",
+    "label_changes": "cases whose removal changes the conventional magnitude label",
+}
 
 
 def _side(value: float, null: float) -> int:
@@ -179,7 +190,9 @@ def _interval_contains(spec: EffectSpec, effect: Effect, reduced, level: float,
     if effect.ci_method != "bca_bootstrap":
         with np.errstate(all="ignore"):
             est = spec.estimate(*reduced, level)
-        iv = est.interval
+        same = [iv for iv in (est.interval, *est.more)
+                if iv is not None and iv.method == effect.ci_method]
+        iv = same[0] if same else est.interval
         if iv is not None and math.isfinite(iv.low) and math.isfinite(iv.high):
             return iv.low <= spec.null_value <= iv.high
     shift = new_value - effect.estimate
@@ -239,7 +252,8 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     total = int(values.size)
     with np.errstate(invalid="ignore"):
         sides = np.sign(values - null).astype(int)
-    sign_flips = all_rows[finite & (sides != side)]
+    # an estimate at the no-effect value has no sign: no removal flips it (see FLIP_DEFINITIONS)
+    sign_flips = all_rows[finite & (sides != side)] if side != 0 else all_rows[:0]
     levels = magnitude_levels(spec.name, values, benchmarks)
     label_changes = (all_rows[finite & (levels != magnitude_levels(spec.name, [theta],
                                                                    benchmarks)[0])]

@@ -234,7 +234,29 @@ def _bootstrap_only(values_fn, reason: str):
     return estimate
 
 
-d_av = _bootstrap_only(d_av_values, "both conditions are constant: the average variance is zero")
+def d_av(a, b, level, digits=12) -> Estimate:
+    """d_av = mean(d) / sqrt((s_A^2 + s_B^2) / 2) (Cumming 2012; Lakens 2013, eq. 10). Its own
+    interval is the bootstrap's (resampling participants). Beside it, the interval that agrees
+    with the paired t test: d_z's noncentral-t limits times SD(d) / s_av, that ratio held at its
+    observed value (so it excludes 0 exactly when the paired t test rejects; its coverage is not
+    studied here)."""
+    x = _pair(a, b)
+    value = float(d_av_values(x, digits))
+    if not math.isfinite(value):
+        return Estimate(None, None, "both conditions are constant: the average variance is zero")
+    dz = d_z(a, b, level, digits)
+    more = ()
+    if dz.value is not None and dz.interval is not None and dz.interval.method == "noncentral_t":
+        _, va, _ = mean_var(x[:, 0])
+        _, vb, _ = mean_var(x[:, 1])
+        _, vd, _ = mean_var(differences(x, digits))
+        ratio = math.sqrt(float(vd)) / math.sqrt((float(va) + float(vb)) / 2)
+        more = (Interval("noncentral_t_scaled", dz.interval.low * ratio, dz.interval.high * ratio,
+                         level, "d_z's noncentral-t limits times SD(d) / s_av: agrees with the"
+                         " paired t test"),)
+    return Estimate(value, None, None, (), {}, more)
+
+
 d_rm = _bootstrap_only(d_rm_values, "d_rm is undefined (constant differences or conditions)")
 matched_rank_biserial = _bootstrap_only(matched_rank_biserial_values,
                                         "every difference is zero: no signed ranks")
@@ -256,7 +278,9 @@ def ps_dep(a, b, level, digits=12) -> Estimate:
              + (f" = {discarded:.4f}" if discarded is not None else " (undefined: all zero)"),
              f"zero differences: {zero} of {n}, counted one half each"]
     details = {"ties_discarded": discarded, "n_positive": pos, "n_zero": zero, "n": n}
-    return Estimate(p, Interval("wilson", max(0.0, centre - half), min(1.0, centre + half), level),
+    # the limits hold the estimate: at p = 0 or 1 the Wilson limit is 0 or 1 up to rounding
+    low, high = min(max(0.0, centre - half), p), max(min(1.0, centre + half), p)
+    return Estimate(p, Interval("wilson", float(low), float(high), level),
                     None, tuple(notes), details)
 
 
@@ -275,14 +299,25 @@ def r_from_z(a, b, level, digits=12) -> Estimate:
 def signed_rank_null_pmf(n: int) -> np.ndarray:
     """Exact null distribution of T+ for n untied non-zero differences: P(T+ = t), t = 0..n(n+1)/2,
     from the generating function prod_{i=1}^{n} (1 + q^i) / 2^n."""
-    size = n * (n + 1) // 2 + 1
-    p = np.zeros(size)
-    p[0] = 1.0
-    for i in range(1, n + 1):
+    return sign_pattern_pmf(np.arange(1, n + 1))
+
+
+def sign_pattern_pmf(steps: np.ndarray) -> np.ndarray:
+    """P(sum of the steps carrying a + sign = t), t = 0..sum(steps), when each of the whole-number
+    `steps` carries a + or a - with probability 1/2 independently: the generating function
+    prod_i (1 + q^(step_i)) / 2, expanded one step at a time (the shift algorithm of Streitberg &
+    Roehmel 1986). With the ranks 1..n it is Wilcoxon's null distribution of T+; with twice the
+    mid-ranks of tied |d| it is the distribution of 2 T+ given the ties. Every probability is a
+    count over 2^n, exact in double precision for n <= 50."""
+    steps = np.asarray(steps, dtype=np.int64)
+    size = int(np.sum(steps)) + 1
+    pmf = np.zeros(size)
+    pmf[0] = 1.0
+    for step in steps:
         shifted = np.zeros(size)
-        shifted[i:] = p[:size - i]
-        p = (p + shifted) / 2.0
-    return p
+        shifted[step:] = pmf[:size - step]
+        pmf = (pmf + shifted) / 2.0
+    return pmf
 
 
 def walsh_interval_order(n: int, level: float, exact: bool, tie_term: float = 0.0):
@@ -324,6 +359,18 @@ def hodges_lehmann(a, b, level, digits=12) -> Estimate:
         notes.append("ties or zero differences: coverage of the interval is approximate")
     low, high = sums.kth(k) / 2.0, sums.kth(m + 1 - k) / 2.0
     return Estimate(value, Interval("distribution_free", low, high, level), None, tuple(notes))
+
+
+def one_signed(x: np.ndarray, digits: int = 12) -> str | None:
+    """Why the signed-rank indices cannot be bootstrapped, or None: when every non-zero
+    difference has the same sign, every resample has no ranks of the other sign, and T- (or T+)
+    stays at zero in each."""
+    d = differences(x, digits)
+    nonzero = d[d != 0]
+    if nonzero.size and (np.all(nonzero > 0) or np.all(nonzero < 0)):
+        return ("every non-zero difference has the same sign: so does every resample, so the"
+                " bootstrap cannot show the uncertainty")
+    return None
 
 
 def sign_test(d: np.ndarray) -> dict:

@@ -30,13 +30,19 @@ ROBUST_SCALE = 0.642  # Algina, Keselman & Penfield (2005): makes robust d equal
 
 @dataclass(frozen=True)
 class Estimate:
-    """A point estimate, its analytic interval (or None), and why it is undefined (or None)."""
+    """A point estimate, its analytic interval (or None), and why it is undefined (or None).
+
+    `more` holds further intervals reported beside the index's own: those that agree with a test
+    by construction (`agreement.MATCHED`) and those valid where the bootstrap is not (complete
+    separation, differences of one sign). When the index has neither an analytic nor a bootstrap
+    interval, the first of them is its interval (`pipeline.estimate_all`)."""
 
     value: float | None
     interval: Interval | None
     reason: str | None = None
     notes: tuple[str, ...] = ()
     details: dict = field(default_factory=dict)  # named numbers reported beside the estimate
+    more: tuple[Interval, ...] = ()
 
     @property
     def estimate(self) -> float | None:
@@ -230,7 +236,22 @@ def mean_difference(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
         return Estimate(diff, None, None, ("the variances overflow double precision: no"
                                            " interval",))
     h = special.stdtrit(nu, 0.5 + level / 2) * math.sqrt(se2)
-    return Estimate(diff, Interval("welch_t", diff - h, diff + h, level))
+    return Estimate(diff, Interval("welch_t", diff - h, diff + h, level), None, (), {},
+                    _student_interval(diff, va, na, vb, nb, level))
+
+
+def _student_interval(diff: float, va: float, na: int, vb: float, nb: int,
+                      level: float) -> tuple[Interval, ...]:
+    """The pooled-variance (Student) interval diff +- t(level; n_A + n_B - 2) s_p
+    sqrt(1/n_A + 1/n_B), the one that agrees with Student's t test; assumes equal variances."""
+    df = na + nb - 2
+    sp2 = ((na - 1) * va + (nb - 1) * vb) / df
+    se = math.sqrt(sp2 * (1.0 / na + 1.0 / nb))
+    if not (se > 0 and math.isfinite(se)):
+        return ()
+    h = special.stdtrit(df, 0.5 + level / 2) * se
+    return (Interval("student_t", diff - h, diff + h, level,
+                     "pooled variance: agrees with Student's t test; assumes equal variances"),)
 
 
 NCT_LIBRARY_MAX_T = 2000.0  # |t| up to which scipy's noncentral-t distribution function is used
@@ -411,7 +432,34 @@ def d_unpooled(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
         va / (na - 1) + vb / (nb - 1)) / s2
     z = special.ndtri(0.5 + level / 2)
     se = math.sqrt(var)
-    return Estimate(value, Interval("bonett_normal", value - z * se, value + z * se, level))
+    welch = d_unpooled_welch_interval(a, b, level)
+    return Estimate(value, Interval("bonett_normal", value - z * se, value + z * se, level),
+                    None, (), {}, () if welch is None else (welch,))
+
+
+def d_unpooled_welch_interval(a: np.ndarray, b: np.ndarray, level: float) -> Interval | None:
+    """The interval of d with unpooled SDs that agrees with Welch's t test: Welch's
+    t_W = diff / sqrt(s_A^2/n_A + s_B^2/n_B) is taken as noncentral t with Welch's df, its
+    noncentrality limits (`noncentral_t_limits`) are carried to d by d = c t_W with
+    c = sqrt(s_A^2/n_A + s_B^2/n_B) / sqrt((s_A^2 + s_B^2)/2), c held at its observed value.
+    It excludes 0 exactly when Welch's test rejects (at the noncentrality 0 the inversion is the
+    central t with Welch's df). An approximation in the spirit of Delacre et al. (2021) for d
+    with unpooled SDs (from memory); the index's own interval (Bonett 2008) is the better-studied
+    one (docs/coverage.md). None when the limits cannot be found."""
+    ma, va, na = mean_var(a)
+    mb, vb, nb = mean_var(b)
+    va, vb = float(va), float(vb)
+    se = math.sqrt(va / na + vb / nb)
+    s = math.sqrt((va + vb) / 2)
+    nu = welch_df(va, na, vb, nb)
+    if not (se > 0 and s > 0 and math.isfinite(se) and math.isfinite(nu)):
+        return None
+    limits = noncentral_t_limits(float(ma - mb) / se, nu, level)
+    if limits is None:
+        return None
+    c = se / s
+    return Interval("noncentral_t_welch", limits[0] * c, limits[1] * c, level,
+                    "noncentral t with Welch's df: agrees with Welch's t test")
 
 
 def robust_d(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:

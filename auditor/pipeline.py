@@ -62,7 +62,8 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
           paired_columns: list[str] | str | None = None,
           level: float | None = None, resamples: int | None = None,
           seed: int | None = None, reference: str | None = None,
-          progress: Progress = None, policy=None, scope: str = "full") -> AuditResult:
+          progress: Progress = None, policy=None, scope: str = "full",
+          coverage_check: bool | None = None) -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -83,6 +84,10 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     comparisons and no texts. Every number a screen row shows equals the full run's; so do the
     estimates and intervals, while the outlier check's index, rechecked only for the extreme
     cases, says so in its interval rule.
+
+    `coverage_check` (default: the policy's `intervals.coverage_check`) adds the estimated
+    coverage of the primary index's quoted interval on populations shaped like the data
+    (`with_coverage_check`); a screen never runs it.
     """
     if scope not in SCOPES:
         raise DesignError(f"scope '{scope}': use one of {', '.join(SCOPES)}")
@@ -115,18 +120,68 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     if reference is not None and (wide is not None or subject is not None):
         raise DesignError("--reference applies to two independent groups only (it names the"
                           " group whose SD scales Glass's delta)")
+    coverage = (policy.value("intervals", "coverage_check") if coverage_check is None
+                else bool(coverage_check)) and scope == "full"
     if wide is not None:
         design = wide_repeated(table, list(wide), subject)
-        return _audit_repeated(design, outcome or design.outcome, **settings)
-    if subject is not None:
-        return _audit_repeated(long_repeated(table, outcome, group, subject, chosen), outcome,
-                               **settings)
-    design = independent_groups(table, outcome, group, chosen)
-    if len(design.labels) == 2:
-        return _audit_two_groups(design, reference, **settings)
-    if reference is not None:
-        raise DesignError("--reference applies to two independent groups only")
-    return _audit_k_groups(design, **settings)
+        result = _audit_repeated(design, outcome or design.outcome, **settings)
+    elif subject is not None:
+        result = _audit_repeated(long_repeated(table, outcome, group, subject, chosen), outcome,
+                                 **settings)
+    else:
+        design = independent_groups(table, outcome, group, chosen)
+        if len(design.labels) == 2:
+            result = _audit_two_groups(design, reference, **settings)
+        elif reference is not None:
+            raise DesignError("--reference applies to two independent groups only")
+        else:
+            result = _audit_k_groups(design, **settings)
+    return with_coverage_check(result, policy) if coverage else result
+
+
+COVERAGE_STREAM = 8  # spawn key of the random stream the coverage check draws from
+
+
+def with_coverage_check(result: AuditResult, policy: Policy,
+                        simulations: int | None = None) -> AuditResult:
+    """The result with `coverage_check`: how often the primary index's quoted interval method
+    covers the index's true value in populations shaped like the observed groups (smoothed
+    bootstrap, `coverage_check.coverage_check`), data sets of the observed sizes, `simulations`
+    of them (default: the policy's `intervals.coverage_simulations`), the bootstrap with the
+    audit's resamples; drawn from its own stream of the seed. The reviewer note quotes a
+    shortfall."""
+    from auditor.coverage_check import coverage_check
+
+    decision = result.decision
+    if decision is None or result.samples is None:
+        return result
+    method = decision.interval.get("method")
+    if method in (None, "none"):
+        note = (f"coverage check: {decision.primary} has no interval here, so there is no"
+                " coverage to check")
+        return dataclasses.replace(result, warnings=result.warnings + (note,))
+    labels = tuple(g.label for g in result.groups)
+    values = result.samples.values
+    if result.design == "two_independent":
+        reference = labels.index(result.settings.reference) if result.settings.reference else 1
+        specs, samples = two_group_effects(reference), tuple(values)
+    elif result.design == "k_independent":
+        specs, samples = k_independent_effects(), tuple(values)
+    else:
+        x = np.column_stack(values)
+        specs = paired_effects() if x.shape[1] == 2 else k_repeated_effects()
+        samples = (x,)
+    spec = next(s for s in specs if s.name == decision.primary)
+    rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
+                                                       spawn_key=(COVERAGE_STREAM,)))
+    check = coverage_check(
+        spec, samples, method=method, level=result.settings.level,
+        simulations=simulations or policy.value("intervals", "coverage_simulations"),
+        resamples=result.settings.bootstrap_resamples, rng=rng)
+    result = dataclasses.replace(result, coverage_check=check)
+    decision = dataclasses.replace(decision, reviewer_note=rationale.reviewer_note(
+        result, decision, policy))
+    return dataclasses.replace(result, decision=decision)
 
 
 def _check_settings(level: float, resamples: int, seed: int) -> tuple[float, int]:
@@ -507,21 +562,24 @@ def estimate_all(specs: tuple[EffectSpec, ...], samples: tuple[np.ndarray, ...],
             continue
         if spec.name in loo_names:
             loo_by_name[spec.name] = all_loo[spec.name]
+        boot_reason = None
         if spec.name in boot_names:
             boot = bca_interval(est.value, replicates[spec.name], all_loo[spec.name], level,
-                                spec.bounds)
+                                spec.bounds,
+                                None if spec.degenerate is None else spec.degenerate(*samples))
             extra = () if boot.reason is None else (f"bootstrap: {boot.reason}",)
-            boot_interval = boot.interval
+            boot_interval, boot_reason = boot.interval, boot.reason
         else:
-            extra = () if est.interval is not None else (SCREENED_OUT,)
+            extra = () if est.interval is not None or est.more else (SCREENED_OUT,)
             boot_interval = None
-        intervals = tuple(iv for iv in (est.interval, boot_interval) if iv is not None)
-        primary = est.interval if est.interval is not None else boot_interval
+        intervals = tuple(iv for iv in (est.interval, *est.more, boot_interval) if iv is not None)
+        primary = next((iv for iv in (est.interval, boot_interval, *est.more) if iv is not None),
+                       None)
         effects.append(Effect(
             spec.name, spec.family, float(est.value),
             None if primary is None else primary.low, None if primary is None else primary.high,
             "none" if primary is None else primary.method, intervals, spec.null_value,
-            spec.assumes, None, est.notes + extra, dict(est.details),
+            spec.assumes, None, est.notes + extra, dict(est.details), boot_reason,
         ))
     return tuple(effects), notes, loo_by_name
 

@@ -69,6 +69,10 @@ TESTS = {  # design -> test -> what it compares
 }
 
 OUTLIER_RULES = ("beyond_3_iqr", "beyond_1_5_iqr", "modified_z")
+# keys added after the first policies were written: a policy without them gets these values, so
+# that it still reads (its fingerprint covers the filled-in values)
+OPTIONAL = {("intervals", "match_test"): True, ("intervals", "coverage_check"): False,
+            ("intervals", "coverage_simulations"): 200}
 INTERVAL_METHODS = ("analytic", "bootstrap")
 
 
@@ -211,6 +215,9 @@ def _schema() -> dict:
         "intervals": {
             "level": (_NUMBER, *between(0.5, 1, False, True)),
             "method": (str, lambda v: v in INTERVAL_METHODS, "one of " + ", ".join(INTERVAL_METHODS)),
+            "match_test": (bool, lambda v: True, "true or false"),
+            "coverage_check": (bool, lambda v: True, "true or false"),
+            "coverage_simulations": (int, *whole(20, 100_000)),
         },
         "bootstrap": {
             "resamples": (int, *whole(100, 10_000_000)),
@@ -260,6 +267,9 @@ def _check(data: dict, source: str) -> dict:
                 _unknown(source, f"{section}.", key, keys)
         out[section] = {}
         for key, (types, ok, allowed) in keys.items():
+            if key not in table and (section, key) in OPTIONAL:
+                out[section][key] = OPTIONAL[section, key]
+                continue
             if key not in table:
                 _fail(source, f"{section}.{key}", f"missing; give {allowed}")
             value = table[key]
@@ -408,7 +418,12 @@ def describe(policy: Policy) -> str:
         f"- Paired data: many zeros when at least {s['paired']['many_zero_share']:.0%} of the"
         " differences are zero.",
         "",
-        f"Intervals: {s['intervals']['level']:.0%}, {s['intervals']['method']}; bootstrap"
+        f"Intervals: {s['intervals']['level']:.0%}, {s['intervals']['method']}"
+        + ("; the primary index quotes the interval that agrees with the reported test where it"
+           " has one" if s["intervals"]["match_test"] else "")
+        + (f"; coverage checked on the data's own shape ({s['intervals']['coverage_simulations']}"
+           " simulations)" if s["intervals"]["coverage_check"] else "")
+        + "; bootstrap"
         f" {s['bootstrap']['resamples']} resamples, seed {s['bootstrap']['seed']};"
         f" texts round to {s['report']['decimals']} decimals.",
     ]

@@ -284,6 +284,16 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     return a_hat, var, satterthwaite_df(va, na, vb, nb)
 
 
+def separation(a: np.ndarray, b: np.ndarray) -> str | None:
+    """Why the dominance indices cannot be bootstrapped, or None: when the groups do not overlap
+    (every A value above every B value, or below), every resample is separated too and A stays
+    at 1 (or 0) in each."""
+    if a.size and b.size and (np.min(a) > np.max(b) or np.max(a) < np.min(b)):
+        return ("the groups do not overlap (complete separation): every resample is separated"
+                " too, so the bootstrap cannot show the uncertainty")
+    return None
+
+
 def _placements_of(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """#(b < a_i) + #(b = a_i) / 2 for each a_i."""
     sb = np.sort(b)

@@ -30,7 +30,16 @@ NAMES = {
 INTERVAL_WORDS = {
     "noncentral_t": "noncentral-t", "welch_t": "Welch t", "t": "t", "brunner_munzel":
     "Brunner-Munzel", "distribution_free": "distribution-free", "bca_bootstrap": "BCa bootstrap",
-    "wilson": "Wilson",
+    "wilson": "Wilson", "student_t": "Student t", "paired_t": "paired t",
+    "noncentral_t_welch": "noncentral-t (Welch df)", "noncentral_t_scaled": "scaled noncentral-t",
+    "brunner_munzel_via_A": "Brunner-Munzel (via A)",
+    "proportional_odds_score": "proportional-odds score",
+    "proportional_odds_score_via_A": "proportional-odds score (via A)",
+    "signed_rank_score": "signed-rank score",
+    "signed_rank_score_via_rank_biserial": "signed-rank score (via the rank-biserial r)",
+    "sign_test_score": "sign-test score", "noncentral_f": "noncentral-F",
+    "noncentral_chi2": "noncentral chi-square", "bonett_normal": "Bonett",
+    "normal_approximation": "normal-approximation",
 }
 
 CHECK_WORDS = {
@@ -225,7 +234,53 @@ def reviewer_note(result, decision, policy: Policy) -> str:
                     text = (f"removing {f.count} case(s) (lines {lines}) brings the no-effect"
                             " value into its interval")
                 parts.append(f"Fragility of {NAMES[name]}: {text}.")
+    parts += _interval_remarks(result, decision, dec)
     return " ".join(parts)
+
+
+def coverage_text(check, decimals: int = 2) -> str:
+    """The coverage check in one sentence (what the reports print), or '' without one."""
+    if check is None:
+        return ""
+    method = INTERVAL_WORDS.get(check.method, check.method)
+    name = NAMES.get(check.index, check.index)
+    if check.reason:
+        return f"Coverage check of the {method} interval of {name}: not run ({check.reason})."
+    return (f"Coverage check: in {check.usable} data sets simulated from populations shaped like"
+            f" these groups (smoothed bootstrap, sizes as observed; true value"
+            f" {fmt(check.truth, decimals + 1)}), the {method} interval of {name} covered the"
+            f" true value in {_percent(check.coverage, decimals)} (Monte-Carlo SE"
+            f" {_percent(check.mc_se, decimals)}) against the nominal"
+            f" {_percent(check.level, decimals)}: coverage {check.verdict}.")
+
+
+def _interval_remarks(result, decision, dec: int) -> list[str]:
+    """What the reviewer should know about the quoted interval: a bootstrap withheld at a bound,
+    an interval chosen to agree with the test, a disagreement, a coverage shortfall."""
+    out = []
+    primary = result.effect(decision.primary)
+    if primary.bootstrap_reason:
+        out.append(f"No bootstrap interval for {NAMES[decision.primary]}:"
+                   f" {primary.bootstrap_reason}.")
+    iv = decision.interval
+    instead = iv.get("instead_of")
+    if iv.get("matched_to_test") and instead:
+        word = INTERVAL_WORDS.get(instead.get("method"), str(instead.get("method")))
+        verdict = {False: "would have contradicted the test",
+                   True: "would have agreed with the test too",
+                   None: "could not be compared with the test"}[instead.get("agrees_with_test")]
+        out.append(f"The interval quoted agrees with the {decision.test['label']} by"
+                   f" construction; the index's {word} interval"
+                   f" ({_interval_text(instead, dec)}) {verdict}.")
+    if iv.get("agrees_with_test") is False:
+        out.append(f"The quoted interval and the {decision.test['label']} disagree about the"
+                   " no-effect value; no interval of this index agrees with that test by"
+                   " construction.")
+    check = getattr(result, "coverage_check", None)
+    if check is not None and check.verdict and check.verdict.startswith("falls short"):
+        out.append(coverage_text(check, dec) + " Read the interval as narrower than its"
+                   " nominal level claims.")
+    return out
 
 
 def _mean_index(result) -> str:
@@ -243,6 +298,9 @@ def methods_sentence(result, decision, policy: Policy) -> str:
     return (f"Effect sizes were screened and chosen with auditor {result.tool_version} under the"
             f" policy '{policy.name}' (version {policy.version}, SHA-256"
             f" {policy.sha256[:16]}): the primary index was {NAMES[decision.primary]} with its"
-            f" {level} {method} interval" + (f", reported beside {also}" if also else "")
+            f" {level} {method} interval"
+            + (" (which agrees with the test by construction)" if iv.get("matched_to_test")
+               else "")
+            + (f", reported beside {also}" if also else "")
             + f"; the test was the {decision.test['label']}; bootstrap intervals used"
             f" {s.bootstrap_resamples} stratified resamples (BCa) with seed {s.seed}.")

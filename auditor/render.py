@@ -11,6 +11,7 @@ import math
 import numpy as np
 
 from auditor.results import AuditResult
+from auditor.rationale import coverage_text
 
 
 def to_json(result: AuditResult) -> str:
@@ -201,6 +202,8 @@ def _decision(result: AuditResult, out: list[str]) -> None:
     out.extend(_wrap(d.rationale))
     for note in d.notes:
         out.extend(_wrap("Note: " + note))
+    if result.coverage_check is not None:
+        out.extend(_wrap(coverage_text(result.coverage_check)))
     out.append("")
 
 
@@ -279,6 +282,10 @@ def _effect_table(effects, level: float, out: list[str], title: str) -> None:
             continue
         ci = f"[{num(e.ci_low)}, {num(e.ci_high)}]" if e.ci_low is not None else "n/a"
         boot = e.interval("bca_bootstrap")
-        bci = f"[{num(boot.low)}, {num(boot.high)}]" if boot is not None else "n/a"
+        bci = (f"[{num(boot.low)}, {num(boot.high)}]" if boot is not None
+               else "withheld" if e.bootstrap_reason else "n/a")
         out.append(f"  {e.name:<{width}} {num(e.estimate):>9}  {ci:<22} {e.ci_method:<28} {bci:<22}")
+    for e in effects:
+        if e.estimate is not None and e.bootstrap_reason:
+            out.append(f"  {e.name}: bootstrap withheld: {e.bootstrap_reason}")
     out.append("")

@@ -28,7 +28,7 @@ import numpy as np
 from auditor import __version__
 from auditor.errors import AuditError
 from auditor.magnitude import magnitude_label
-from auditor.rationale import INTERVAL_WORDS, NAMES
+from auditor.rationale import INTERVAL_WORDS, NAMES, coverage_text
 
 SECTIONS = (
     ("decision", "Decision"),
@@ -203,8 +203,28 @@ def _effect_rows(result, benchmarks=None):
                       f"[{_n(e.ci_low)}, {_n(e.ci_high)}]" if e.ci_low is not None else "n/a",
                       INTERVAL_WORDS.get(e.ci_method, e.ci_method.replace("_", " ")),
                       f"[{_n(boot.low)}, {_n(boot.high)}]" if boot and boot.low is not None
-                      else "n/a", label or "", e.assumes], e.name == primary))
+                      else ("withheld" if e.bootstrap_reason else "n/a"), label or "",
+                      e.assumes], e.name == primary))
     return head, rows
+
+
+def _interval_lines(result) -> list[str]:
+    """Under the effects table: each withheld bootstrap with its reason, and each interval
+    computed beside an index's own (test-matched or boundary-valid ones)."""
+    lines = []
+    for e in result.effects:
+        if e.estimate is None:
+            continue
+        name = NAMES.get(e.name, e.name)
+        if e.bootstrap_reason:
+            lines.append(f"{name}: no bootstrap interval, {e.bootstrap_reason}.")
+        for iv in e.intervals:
+            if iv.method in (e.ci_method, "bca_bootstrap") or iv.low is None:
+                continue
+            word = INTERVAL_WORDS.get(iv.method, iv.method.replace("_", " "))
+            lines.append(f"{name}: {word} interval [{_n(iv.low)}, {_n(iv.high)}]"
+                         + (f" ({iv.note})" if iv.note else "") + ".")
+    return lines
 
 
 def _influence_rows(result):
@@ -294,6 +314,9 @@ def render_html(result, figures=()) -> str:
             else:
                 body.append(f'<p class="lead">{_e(dec.rationale)}</p>')
                 body += [f"<p>Note: {_e(n)}</p>" for n in dec.notes]
+                if result.coverage_check is not None:
+                    body.append(f'<p class="coverage">{_e(coverage_text(result.coverage_check))}'
+                                "</p>")
                 also = ", ".join(NAMES.get(a, a) for a in dec.also_report) or "none"
                 body.append(f"<p>Reported beside it: {_e(also)}. Branch of the policy:"
                             f" {_e(dec.branch.replace('_', ' '))}.</p>")
@@ -317,6 +340,10 @@ def render_html(result, figures=()) -> str:
             level = result.settings.level
             body.append(f"<p>{_e(f'{level * 100:g}% intervals; the primary index is in bold;')}"
                         f" {_e('labels are conventional benchmarks (see the policy).')}</p>")
+            lines = _interval_lines(result)
+            if lines:
+                body.append('<ul class="intervals">'
+                            + "".join(f"<li>{_e(x)}</li>" for x in lines) + "</ul>")
         elif key == "influence":
             head, rows = _influence_rows(result)
             if rows:
@@ -388,6 +415,8 @@ def render_markdown(result, figures=(), figure_folder: str = "figures") -> str:
         if key == "decision" and dec is not None:
             out += [_m(dec.rationale), ""]
             out += [f"Note: {_m(n)}" for n in dec.notes]
+            if result.coverage_check is not None:
+                out += ["", _m(coverage_text(result.coverage_check))]
             also = ", ".join(NAMES.get(a, a) for a in dec.also_report) or "none"
             out += [f"Reported beside it: {_m(also)}. Branch of the policy:"
                     f" {_m(dec.branch.replace('_', ' '))}.", ""]
@@ -402,6 +431,8 @@ def render_markdown(result, figures=(), figure_folder: str = "figures") -> str:
         elif key == "effects":
             head, rows = _effect_rows(result)
             out += _md_table(head, [r for r, _ in rows], [p for _, p in rows]) + [""]
+            lines = _interval_lines(result)
+            out += [f"- {_m(x)}" for x in lines] + ([""] if lines else [])
         elif key == "influence":
             head, rows = _influence_rows(result)
             out += (_md_table(head, rows) if rows else ["Influence was not computed."]) + [""]

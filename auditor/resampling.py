@@ -146,21 +146,60 @@ def acceleration(loo: tuple[np.ndarray, ...]) -> float:
     return float(acc)
 
 
+MIN_DISTINCT = 10  # fewer distinct replicate values than this: too coarse for an interval
+PILED_SHARE = 0.5  # at least this share of replicates at a bound of the index: no interval
+BOUND_TOLERANCE = 1e-12
+
+
+def degenerate_reason(theta_hat: float, finite: np.ndarray,
+                      bounds: tuple[float, float] | None) -> str | None:
+    """Why the bootstrap distribution cannot support an interval, or None when it can.
+
+    The resamples cannot fall beyond the range of a bounded index, so when the estimate sits at
+    a bound (say A = 1 under complete separation, or Kendall's W = 1), or when most resamples
+    pile up at one, the percentile-based limits collapse onto the bound and the interval reads
+    as near-certainty that the data do not support. A replicate distribution with fewer than
+    MIN_DISTINCT distinct values is a staircase whose quantiles jump between a handful of
+    values. (Which fallback replaces the bootstrap is the index's business: see
+    `pipeline.estimate_all`.)"""
+    distinct = np.unique(finite).size
+    if bounds is not None:
+        for bound in bounds:
+            if abs(theta_hat - bound) <= BOUND_TOLERANCE:
+                return (f"the estimate is at the index's bound ({bound:g}): no resample can fall"
+                        " beyond it, so a bootstrap interval would collapse onto the bound")
+        at_bound = np.count_nonzero((np.abs(finite - bounds[0]) <= BOUND_TOLERANCE)
+                                    | (np.abs(finite - bounds[1]) <= BOUND_TOLERANCE))
+        if at_bound >= PILED_SHARE * finite.size:
+            return (f"{at_bound / finite.size:.0%} of resamples sit at a bound of the index: the"
+                    " bootstrap distribution is piled against it")
+    if distinct < MIN_DISTINCT:
+        what = "one value" if distinct == 1 else f"{distinct} distinct values"
+        return (f"the resamples take only {what} (fewer than {MIN_DISTINCT}): too coarse for an"
+                " interval")
+    return None
+
+
 def bca_interval(theta_hat: float, replicates: np.ndarray, loo: tuple[np.ndarray, ...],
-                 level: float, bounds: tuple[float, float] | None = None) -> BootstrapSummary:
+                 level: float, bounds: tuple[float, float] | None = None,
+                 degenerate: str | None = None) -> BootstrapSummary:
     """Bias-corrected and accelerated bootstrap interval (Efron 1987; Efron & Tibshirani 1993,
     sec. 14.3).
 
     z0 = Phi^-1(share of replicates below theta-hat, ties counted half); the limits are the
     replicate quantiles (linear interpolation) at Phi(z0 + (z0 + z)/(1 - a (z0 + z))) for
     z = Phi^-1((1 - level)/2) and its negative. Replicates where the statistic is undefined are
-    set aside and counted. If every replicate is equal, the interval is that single value.
+    set aside and counted.
 
-    When the estimate itself lies outside the central `level` share of the replicates (fewer
-    than (1 - level)/2 of them on one side: typically an estimate at the edge of its range, such
-    as an omnibus effect near zero, where almost every resample is larger), the bias correction
-    is as large as the interval and pushes both limits into the extreme replicates: no interval is
-    given then, with the reason.
+    No interval is given, with the reason, when the bootstrap distribution cannot support one:
+    `degenerate` (a reason the caller found in the data, e.g. complete separation of the groups,
+    which every resample inherits), or `degenerate_reason` (the estimate at a bound of the index,
+    the resamples piled at one, fewer than MIN_DISTINCT distinct replicate values, every resample
+    equal). Nor when the estimate lies outside the central `level` share of the replicates
+    (fewer than (1 - level)/2 of them on one side: typically an estimate at the edge of its
+    range, such as an omnibus effect near zero, where almost every resample is larger): the bias
+    correction is then as large as the interval and pushes both limits into the extreme
+    replicates.
     """
     finite = replicates[np.isfinite(replicates)]
     undefined = int(replicates.size - finite.size)
@@ -168,10 +207,9 @@ def bca_interval(theta_hat: float, replicates: np.ndarray, loo: tuple[np.ndarray
         return BootstrapSummary(None, None, None, undefined,
                                 "the statistic is undefined in almost every resample")
     loo = tuple(v[np.isfinite(v)] for v in loo)
-    if np.all(finite == finite[0]):
-        return BootstrapSummary(Interval("bca_bootstrap", float(finite[0]), float(finite[0]), level,
-                                         "every resample gave the same value"),
-                                0.0, 0.0, undefined)
+    reason = degenerate or degenerate_reason(theta_hat, finite, bounds)
+    if reason is not None:
+        return BootstrapSummary(None, None, None, undefined, reason)
     share = (np.count_nonzero(finite < theta_hat) + np.count_nonzero(finite <= theta_hat)) / (
         2.0 * finite.size)
     if share <= 0.0 or share >= 1.0:

@@ -234,7 +234,9 @@ class Effect(_Plain):
 
     `ci_low`/`ci_high` repeat the interval of the index's own method (`ci_method`); `intervals`
     lists every interval computed, the bootstrap one included. `estimate` is None with a `reason`
-    when the index is undefined for these data.
+    when the index is undefined for these data. `bootstrap_reason` says why no bootstrap interval
+    is given when one was attempted and withheld (a degenerate or boundary bootstrap
+    distribution: `resampling.bca_interval`); the index's other intervals then stand alone.
     """
 
     name: str
@@ -249,6 +251,7 @@ class Effect(_Plain):
     reason: str | None = None
     notes: tuple[str, ...] = ()
     details: dict = field(default_factory=dict)
+    bootstrap_reason: str | None = None
 
     def interval(self, method: str) -> Interval | None:
         for iv in self.intervals:
@@ -322,6 +325,7 @@ class AuditResult(_Plain):
     influence: Any = None  # influence.Influence
     decision: Any = None  # decide.Decision
     policy: dict | None = None  # name, version, sha256 and source of the policy applied
+    coverage_check: Any = None  # coverage_check.CoverageCheck of the primary index, when asked
     samples: Samples | None = field(default=None, repr=False, compare=False)
 
     @property
@@ -368,6 +372,8 @@ class AuditResult(_Plain):
             "influence": None if self.influence is None else self.influence.to_dict(),
             "decision": None if self.decision is None else self.decision.to_dict(),
             "policy": self.policy,
+            "coverage_check": (None if self.coverage_check is None
+                               else self.coverage_check.to_dict()),
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

@@ -386,13 +386,7 @@ def signed_rank_exact_p(nonzero) -> float:
     nonzero = np.asarray(nonzero, dtype=float)
     doubled = np.rint(2.0 * ranks.midranks(np.abs(nonzero))).astype(np.int64)
     observed = int(np.sum(doubled[nonzero > 0]))
-    size = int(np.sum(doubled)) + 1
-    pmf = np.zeros(size)
-    pmf[0] = 1.0
-    for step in doubled:
-        shifted = np.zeros(size)
-        shifted[step:] = pmf[:size - step]
-        pmf = (pmf + shifted) / 2.0
+    pmf = paired.sign_pattern_pmf(doubled)
     lower, upper = float(np.sum(pmf[:observed + 1])), float(np.sum(pmf[observed:]))
     return min(1.0, 2.0 * min(lower, upper))
 

@@ -7,6 +7,7 @@ import json
 
 from auditor.cli import main
 from auditor.demo import demo_audits, demo_data_path, make_demo_frame
+from honest import assert_honest_intervals
 
 
 def test_committed_csv_is_what_the_seeded_generator_writes():
@@ -29,6 +30,7 @@ def test_demo_writes_a_report_per_audit_and_an_index(tmp_path, capsys):
         assert (tmp_path / name / "report.md").is_file()
         doc = json.loads((tmp_path / name / "audit.json").read_text(encoding="utf-8"))
         designs[name] = doc["design"]
+        assert_honest_intervals(doc)
         data = doc["data"]
         assert data["rows_read"] == (data["rows_used"] + len(data["excluded"])
                                      + sum(data["not_selected"].values()))

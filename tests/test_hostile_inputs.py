@@ -35,6 +35,7 @@ from typing import Callable
 import numpy as np
 import openpyxl
 import pytest
+from honest import assert_honest_intervals
 
 GY = ("--outcome", "y", "--group", "g")
 JSON_OUT = ("--json", "-", "--quiet")
@@ -523,6 +524,7 @@ def test_hostile_input(case: Case, run_cli, strict_json, tmp_path):
     for name, effect in doc["effects"].items():
         if isinstance(effect, dict) and "estimate" in effect and effect["estimate"] is None:
             assert effect.get("reason"), f"{name} is null without a reason"
+    assert_honest_intervals(doc)
     if case.check:
         case.check(doc, env)
 

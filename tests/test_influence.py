@@ -15,6 +15,7 @@ from __future__ import annotations
 import itertools
 import json
 import math
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -788,7 +789,25 @@ def test_sign_flips_are_exactly_the_rows_whose_removal_flips(data):
         full_side = side(data.estimate(name), null_of(name))
         expected = sorted(line for line in data.used_lines()
                           if side(data.estimate(name, [line]), null_of(name)) != full_side)
+        if full_side == 0:  # at the no-effect value there is no sign to flip: a move, not a flip
+            expected = []
         assert data.influence["effects"][name]["sign_flips"] == expected, name
+
+
+def test_an_estimate_at_the_no_effect_value_has_no_sign_flips():
+    """Two identical groups: A is exactly 0.5 and every removal moves it off 0.5, yet none flips
+    a sign it does not have; the JSON says what a flip is."""
+    values = np.round(np.random.default_rng(4).normal(20, 3, 24), 1)
+    frame = pd.DataFrame({"y": np.r_[values, values], "g": ["a"] * 24 + ["b"] * 24})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        doc = audit(frame, outcome="y", group="g", resamples=200, seed=3).to_dict()
+    summary = doc["influence"]["effects"]["prob_superiority"]
+    assert doc["effects"]["prob_superiority"]["estimate"] == 0.5
+    moved = [c for c in doc["influence"]["cases"] if c["change"]["prob_superiority"] != 0]
+    assert len(moved) == 48
+    assert summary["sign_flips"] == []
+    assert "no removal flips it" in doc["influence"]["definitions"]["sign_flips"]
 
 
 def test_sign_flips_are_found_in_near_null_data():
