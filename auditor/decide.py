@@ -10,6 +10,7 @@ effects, and the primary index's fragility is compared with the policy's limit.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass, field
 
@@ -262,6 +263,23 @@ def quoted_interval(effect: Effect, method: str) -> dict:
         return {"method": effect.ci_method, "low": effect.ci_low, "high": effect.ci_high,
                 "level": effect.intervals[0].level if effect.intervals else None}
     return {"method": iv.method, "low": iv.low, "high": iv.high, "level": iv.level}
+
+
+def test_matched_effect(effect: Effect, audit_design: str, choice: "Choice",
+                        policy: Policy) -> Effect:
+    """The effect as the decision will quote it: with its test-matched interval as its interval
+    (`agreement.MATCHED`, when the policy's `intervals.match_test` is on and the matched interval
+    is not the index's own), else the effect itself. For the fragility search, which then counts
+    the removals that bring the no-effect value into the interval the report quotes."""
+    design = POLICY_DESIGN[audit_design]
+    branch = policy.branch(design, choice.branch)
+    if branch is None or not policy.settings["intervals"].get("match_test", False):
+        return effect
+    wanted = matched_method(design, branch.test, effect.name)
+    iv = effect.interval(wanted) if wanted else None
+    if iv is None or iv.method == effect.ci_method or iv.low is None:
+        return effect
+    return dataclasses.replace(effect, ci_low=iv.low, ci_high=iv.high, ci_method=iv.method)
 
 
 def interval_with_test(effect: Effect, design: str, test_name: str, test: dict, policy: Policy,

@@ -12,7 +12,8 @@ from collections.abc import Callable
 import numpy as np
 
 from auditor import __version__, diagnostics, kgroups, paired, rationale, significance
-from auditor.decide import MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows
+from auditor.decide import (MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows,
+                            test_matched_effect)
 from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
                             parse_group_list, wide_repeated)
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
@@ -237,8 +238,9 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
 
 @dataclasses.dataclass(frozen=True)
 class _Work:
-    """What a screen-scope audit keeps to finish the primary index once it is chosen: its
-    fragility search, and its interval when it is a fallback the focus did not cover."""
+    """What an audit keeps to finish the primary index once it is chosen: in the screen scope its
+    fragility search and its interval when it is a fallback the focus did not cover; in both
+    scopes the fragility search against a test-matched interval the decision will quote."""
 
     specs: tuple[EffectSpec, ...]
     loo: dict
@@ -295,10 +297,12 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     first, and the texts are left empty."""
     rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
                                                        spawn_key=(PERMUTATION_STREAM,)))
-    choice = None
-    if work is not None:
-        choice = choose(result, policy)
-        result = _finish_primary(result, samples, policy, work, choice.primary)
+    screen = work.settings.get("scope") == "screen"
+    choice = choose(result, policy)
+    if screen:
+        result = _finish_primary(result, samples, policy, work, choice)
+    else:
+        result = _refragile(result, samples, policy, work, choice)
     decision = decide(result, samples, policy, digits, rng, choice)
     labels = tuple(g.label for g in result.groups)
     if len(samples) == 1:  # participants x conditions
@@ -308,7 +312,7 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     else:
         kept = Samples(labels, tuple(samples))
     result = dataclasses.replace(result, decision=decision, policy=policy.stamp(), samples=kept)
-    if work is not None:
+    if screen:
         return result
     decision = dataclasses.replace(
         decision, rationale=rationale.rationale(result, decision, policy),
@@ -317,10 +321,26 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     return dataclasses.replace(result, decision=decision)
 
 
+def _refragile(result: AuditResult, samples, policy: Policy, work: _Work,
+               choice) -> AuditResult:
+    """Full scope: when the decision will quote a test-matched interval of the primary index
+    other than the index's own (`decide.test_matched_effect`), its fragility is searched again
+    against that interval, so that the count speaks of the interval the report quotes."""
+    effect = result.effect(choice.primary)
+    quoted = test_matched_effect(effect, result.design, choice, policy)
+    if quoted is effect or effect.estimate is None or choice.primary not in work.loo:
+        return result
+    spec = next(s for s in work.specs if s.name == choice.primary)
+    return dataclasses.replace(result, influence=with_fragility(
+        result.influence, spec, quoted, samples, work.loo[choice.primary], work.units,
+        work.settings["level"], policy.benchmarks()))
+
+
 def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work,
-                    primary: str) -> AuditResult:
+                    choice) -> AuditResult:
     """Screen scope: the chosen primary index with its bootstrap interval (when the focus left
-    it out) and its fragility search."""
+    it out) and its fragility search (against the interval the decision quotes)."""
+    primary = choice.primary
     spec = next(s for s in work.specs if s.name == primary)
     effect = result.effect(primary)
     if effect.estimate is None:
@@ -334,13 +354,11 @@ def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work,
         result = dataclasses.replace(result, effects=tuple(
             effect if e.name == primary else e for e in result.effects))
     return dataclasses.replace(result, influence=with_fragility(
-        result.influence, spec, effect, samples, loo, work.units, work.settings["level"],
-        policy.benchmarks()))
+        result.influence, spec, test_matched_effect(effect, result.design, choice, policy),
+        samples, loo, work.units, work.settings["level"], policy.benchmarks()))
 
 
-def _work(specs, loo, units, settings, rng) -> _Work | None:
-    if settings.get("scope") != "screen":
-        return None
+def _work(specs, loo, units, settings, rng) -> _Work:
     return _Work(tuple(specs), loo, units, settings, rng)
 
 
