@@ -57,6 +57,7 @@ def with_extras(estimate: Callable[..., Estimate], extras: Callable[..., tuple])
             return est
         return dataclasses.replace(est, more=est.more + tuple(extras(*samples_and_level)))
     combined.__doc__ = estimate.__doc__
+    combined.without_extras = estimate  # the index's own estimate, for callers that need only it
     return combined
 
 

@@ -188,10 +188,17 @@ def _interval_contains(spec: EffectSpec, effect: Effect, reduced, level: float,
     if effect.ci_low is None:
         return None
     if effect.ci_method != "bca_bootstrap":
+        # the index's own interval first (cheap); the intervals beside it only when the
+        # effect's interval is one of those (`effects.with_extras`)
+        own = getattr(spec.estimate, "without_extras", None)
         with np.errstate(all="ignore"):
-            est = spec.estimate(*reduced, level)
-        same = [iv for iv in (est.interval, *est.more)
-                if iv is not None and iv.method == effect.ci_method]
+            est = (own or spec.estimate)(*reduced, level)
+            same = [iv for iv in (est.interval, *est.more)
+                    if iv is not None and iv.method == effect.ci_method]
+            if not same and own is not None:
+                est = spec.estimate(*reduced, level)
+                same = [iv for iv in (est.interval, *est.more)
+                        if iv is not None and iv.method == effect.ci_method]
         iv = same[0] if same else est.interval
         if iv is not None and math.isfinite(iv.low) and math.isfinite(iv.high):
             return iv.low <= spec.null_value <= iv.high
