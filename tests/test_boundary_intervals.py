@@ -220,8 +220,18 @@ SKEWED_SEPARATED = two_groups(np.round(40 + RNG.lognormal(0, 1, 20), 2),
                               np.round(RNG.lognormal(0, 1, 20), 2))
 
 
+RANK_BRANCHES = ("non_normal", "heavy_ties", "outliers")
+BRUNNER_MUNZEL = {f'{line}test = "mann_whitney" }}': f'{line}test = "brunner_munzel" }}'
+                  for line in ('"hedges_g"], ', '"rank_biserial"], ')}
+
+
 def test_under_complete_separation_the_mann_whitney_test_stands_in_for_brunner_munzel():
-    result = run(SKEWED_SEPARATED, outcome="y", group="g")
+    policy = _policy(BRUNNER_MUNZEL, "A with the Brunner-Munzel test on non-normal data")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = audit(SKEWED_SEPARATED, outcome="y", group="g", resamples=BOOT, seed=5,
+                       policy=policy)
+    assert {policy.branch("two_groups", b).test for b in RANK_BRANCHES} == {"brunner_munzel"}
     decision = result.decision
     assert decision.primary == "prob_superiority"
     assert decision.test["name"] == "mann_whitney"
@@ -229,6 +239,13 @@ def test_under_complete_separation_the_mann_whitney_test_stands_in_for_brunner_m
     iv = decision.interval
     assert iv["method"] == "proportional_odds_score" and iv["matched_to_test"] == "mann_whitney"
     assert iv["agrees_with_test"] is True and iv["high"] == 1.0 and iv["low"] < 0.95
+
+
+def test_the_default_policy_pairs_a_with_the_mann_whitney_test_and_its_score_interval():
+    decision = run(SKEWED_SEPARATED, outcome="y", group="g").decision
+    assert decision.branch in RANK_BRANCHES and decision.test["name"] == "mann_whitney"
+    assert decision.interval["method"] == "proportional_odds_score"
+    assert not any("Brunner-Munzel" in n for n in decision.notes)
 
 
 def test_without_match_test_the_index_s_own_interval_is_quoted():

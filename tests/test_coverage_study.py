@@ -1,6 +1,7 @@
 """The coverage study script (`tools/coverage_study.py`): its population values against closed
 forms and brute-force enumeration, a reduced coverage run through the project's own interval
-functions, and its seeding (the same results with one worker process or two).
+functions, the near-separation populations and the interval methods found in a quick run, and its
+seeding (the same results with one worker process or two).
 
 The reduced run uses normal populations with n = 20 per group and a true d of 0.5 (A = 0.638):
 200 replications give a Monte Carlo SE of about 1.5 percentage points at 95%, and the accepted
@@ -164,6 +165,45 @@ def test_true_values_of_unequal_spreads_and_sizes():
     assert weighted["cohen_d"] == pytest.approx(0.8 / math.sqrt((9 * 4 + 19 * 1) / 28), abs=1e-9)
 
 
+@pytest.mark.parametrize("a_value", [0.90, 0.95, 0.99])
+def test_near_separation_populations_have_their_exact_values(a_value):
+    # X_A ~ N(delta, 1), X_B ~ N(0, 1): X_A - X_B ~ N(delta, 2), so A = Phi(delta / sqrt 2)
+    # (e.g. Vargha & Delaney 2000, for normal populations) and delta = sqrt(2) Phi^-1(A)
+    scenario = cs.SCENARIO_BY_KEY[f"sep{round(100 * a_value)}"]
+    delta = math.sqrt(2) * stats.norm.ppf(a_value)
+    assert scenario.group == "near" and scenario.b_size_factor == 1
+    assert scenario.a.loc == pytest.approx(delta, abs=1e-12) and scenario.b.loc == 0.0
+    truth = cs.true_values(scenario)
+    assert truth["prob_superiority"] == pytest.approx(a_value, abs=1e-12)
+    assert truth["cliff_delta"] == truth["rank_biserial"] == pytest.approx(2 * a_value - 1,
+                                                                           abs=1e-12)
+    for name in ("mean_difference", "cohen_d", "hedges_g", "glass_delta", "d_unpooled",
+                 "hodges_lehmann"):
+        assert truth[name] == pytest.approx(delta, abs=1e-12)
+    # 0.642 is the rounded constant that makes robust d equal d under normality
+    assert truth["robust_d"] == pytest.approx(delta, rel=5e-4)
+
+
+@pytest.mark.parametrize("a_value", [0.90, 0.99])
+def test_closed_forms_of_normal_pairs_agree_with_the_integrals(a_value):
+    scenario = cs.SCENARIO_BY_KEY[f"sep{round(100 * a_value)}"]
+    x, y = scenario.a, scenario.b
+    assert cs.prob_superiority(x, y) == pytest.approx(a_value, abs=1e-9)
+    assert cs.hodges_lehmann_shift(x, y) == pytest.approx(x.loc, abs=1e-7)
+    mean, var = cs.normal_trimmed_moments(x)
+    assert cs.trimmed_mean(x) == pytest.approx(mean, abs=1e-9)
+    assert cs.winsorized_variance(x) == pytest.approx(var, rel=1e-9)
+
+
+def test_each_population_group_has_its_own_sizes_and_replications():
+    plan = cs.study_plan(["normal", "sep95"], reps=30, near_reps=12)
+    assert plan == [("normal", 10, 30), ("normal", 20, 30), ("normal", 50, 30),
+                    ("sep95", 5, 12), ("sep95", 10, 12), ("sep95", 20, 12)]
+    assert cs.study_plan(["sep90"], {"near": [7]}, reps=3) == [("sep90", 7, 3)]
+    # the medium-effect populations keep their positions in SCENARIOS (their seeds)
+    assert [s.key for s in cs.SCENARIOS[:5]] == ["normal", "lognormal", "t3", "unequal", "ratings"]
+
+
 def test_monte_carlo_check_agrees_with_the_integral():
     scenario = cs.SCENARIO_BY_KEY["lognormal"]
     check = cs.monte_carlo_check(scenario, 200_000, 5, 1)
@@ -181,7 +221,7 @@ NORMAL_TRUTH = {"cohen_d": 0.5, "prob_superiority": stats.norm.cdf(0.5 / math.sq
 
 @pytest.fixture(scope="module")
 def normal_run():
-    return cs.simulate(["normal"], [N], REPS, RESAMPLES, seed=20240917, workers=1)
+    return cs.simulate([("normal", N, REPS)], RESAMPLES, seed=20240917, workers=1)
 
 
 @pytest.mark.parametrize("name,method", [("cohen_d", "noncentral_t"),
@@ -189,9 +229,12 @@ def normal_run():
 @pytest.mark.parametrize("kind", ["analytic", "bca"])
 def test_reduced_coverage_under_normality(normal_run, name, method, kind):
     cell = normal_run[("normal", N)]
-    j = cs.index_names().index(name)
-    assert cell.methods[f"{name}:{method}"] == REPS  # the analytic interval is the promised one
-    intervals = cell.analytic[:, j] if kind == "analytic" else cell.boot[:, j]
+    names = cs.index_names()
+    j = names.index(name)
+    # the own interval is the promised one, and it is what is reported in every data set
+    assert cs.own_methods(normal_run, names)[name] == method
+    assert np.all(cell.reported_method[:, j] == method)
+    intervals = cell.intervals[(name, method if kind == "analytic" else cs.BCA)]
     truth = NORMAL_TRUTH[name]
     cov, width, undefined = cs.coverage(intervals, truth)
     assert undefined == 0
@@ -199,25 +242,102 @@ def test_reduced_coverage_under_normality(normal_run, name, method, kind):
     assert 0 < width < (1.5 if name == "cohen_d" else 0.5)
 
 
+def test_reduced_coverage_of_the_reported_interval_equals_the_own_one_without_fallbacks(
+        normal_run):
+    cell = normal_run[("normal", N)]
+    j = cs.index_names().index("prob_superiority")
+    np.testing.assert_array_equal(cell.reported[:, j],
+                                  cell.intervals[("prob_superiority", "brunner_munzel")])
+
+
+def _same_cells(one, two):
+    assert one.keys() == two.keys()
+    for key in one:
+        a, b = one[key], two[key]
+        for field in ("est", "reported", "reported_method", "withheld"):
+            np.testing.assert_array_equal(getattr(a, field), getattr(b, field))
+        assert list(a.intervals) == list(b.intervals)
+        for k in a.intervals:
+            np.testing.assert_array_equal(a.intervals[k], b.intervals[k])
+
+
 def test_results_do_not_depend_on_the_number_of_workers():
-    one = cs.simulate(["ratings"], [10], 30, 200, seed=7, workers=1)
-    two = cs.simulate(["ratings"], [10], 30, 200, seed=7, workers=2)
-    a, b = one[("ratings", 10)], two[("ratings", 10)]
-    for field in ("est", "analytic", "boot"):
-        np.testing.assert_array_equal(getattr(a, field), getattr(b, field))
-    assert a.methods == b.methods
+    plan = [("ratings", 10, 30), ("sep99", 5, 30)]
+    _same_cells(cs.simulate(plan, 200, seed=7, workers=1), cs.simulate(plan, 200, seed=7, workers=2))
 
 
-def test_command_line_writes_the_table(tmp_path):
+@pytest.fixture(scope="module")
+def separation_run():
+    # A = 0.99 at n = 5: about three data sets in four have no overlap between the groups
+    return cs.simulate([("sep99", 5, 40), ("normal", 10, 10)], 200, seed=11, workers=1)
+
+
+def test_a_quick_run_finds_the_new_interval_methods(separation_run):
+    found = {key for cell in separation_run.values() for key in cell.intervals}
+    for key in [("mean_difference", "welch_t"), ("mean_difference", "student_t"),
+                ("d_unpooled", "bonett_normal"), ("d_unpooled", "noncentral_t_welch"),
+                ("prob_superiority", "brunner_munzel"),
+                ("prob_superiority", "proportional_odds_score"),
+                ("cliff_delta", "proportional_odds_score_via_A"),
+                ("rank_biserial", "proportional_odds_score_via_A"),
+                ("robust_d", cs.BCA)]:
+        assert key in found, key
+    assert not any(name == "r_from_z" for name, _ in found)
+
+
+def test_under_complete_separation_the_fallback_is_reported_and_counted(separation_run):
+    cell = separation_run[("sep99", 5)]
+    names = cs.index_names()
+    j = names.index("prob_superiority")
+    separated = cell.withheld[:, j] == "complete separation"
+    assert 10 <= np.count_nonzero(separated) < cell.reps
+    # separated: A-hat = 1, no Brunner-Munzel and no BCa interval; the reported one is the score
+    # interval, which reaches 1 and is not a single point
+    assert np.all(cell.est[separated, j] == 1.0)
+    for method in ("brunner_munzel", cs.BCA):
+        assert np.all(np.isnan(cell.intervals[("prob_superiority", method)][separated]))
+    assert np.all(cell.reported_method[separated, j] == "proportional_odds_score")
+    np.testing.assert_array_equal(cell.reported[separated, j],
+                                  cell.intervals[("prob_superiority", "proportional_odds_score")]
+                                  [separated])
+    assert np.all(cell.reported[separated, j, 1] == 1.0)
+    assert np.all(cell.reported[separated, j, 0] < 1.0)
+    # the composites: what is reported, and the BCa interval else the reported one
+    sets = cs.interval_sets(cell, names)
+    np.testing.assert_array_equal(sets[("prob_superiority", cs.BCA_ELSE)][separated],
+                                  cell.reported[separated, j])
+    truth = cs.true_values(cs.SCENARIO_BY_KEY["sep99"])["prob_superiority"]
+    _, _, missing = cs.coverage(sets[("prob_superiority", "brunner_munzel")], truth)
+    assert missing >= np.count_nonzero(separated)
+    assert cs.coverage(sets[("prob_superiority", cs.REPORTED)], truth)[2] == 0
+
+
+def test_command_line_writes_the_tables(tmp_path):
     out = tmp_path / "coverage.md"
-    code = cs.main(["--quick", "--reps", "4", "--resamples", "100", "--sizes", "10",
-                    "--check-pairs", "100000",
-                    "--populations", "normal,unequal", "--workers", "1", "--out", str(out)])
+    code = cs.main(["--quick", "--reps", "4", "--near-reps", "12", "--resamples", "100",
+                    "--sizes", "10", "--near-sizes", "5", "--check-pairs", "100000",
+                    "--populations", "normal,unequal,sep99", "--workers", "1", "--out", str(out),
+                    "--save-raw", str(tmp_path / "raw.pkl")])
     assert code == 0
     text = out.read_text(encoding="utf-8")
     assert "## Coverage % (mean width)" in text
-    assert "| Cohen's d | noncentral_t |" in text
-    assert "| robust d | BCa bootstrap |" in text
+    assert "### Medium effect" in text and "### Near separation" in text
+    assert "| Cohen's d | noncentral_t | own |" in text
+    assert "| robust d | BCa bootstrap | bootstrap |" in text
+    for row in ("| mean difference | student_t | more |",
+                "| d, unpooled SDs | noncentral_t_welch | more |",
+                "| A (prob. of superiority) | proportional_odds_score | more |",
+                "| Cliff's delta | proportional_odds_score_via_A | more |",
+                "| A (prob. of superiority) | reported interval | policy |"):
+        assert row in text, row
+    assert "### A near separation and at small n" in text
+    assert "| complete separation |" in text  # the withheld BCa intervals, counted
     assert "r = Z / sqrt(N)" in text and "| r_from_z" not in text
     assert "size-weighted target" in text
     assert "B = 100" in text and "seed 20240917" in text
+    assert "--sizes 10 --near-sizes 5 --near-reps 12" in text
+    assert "## Recommendation for the default policy" in text
+    # the report can be rewritten from the kept intervals, to the byte
+    again = tmp_path / "again.md"
+    assert cs.main(["--from-raw", str(tmp_path / "raw.pkl"), "--out", str(again)]) == 0
+    assert again.read_text(encoding="utf-8") == text

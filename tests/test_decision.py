@@ -67,16 +67,17 @@ def test_normal_equal_spread_keeps_hedges_g_and_student_t():
     assert d.magnitude["hedges_g"] == "medium"  # g about 0.6 (Cohen 1988 benchmarks)
 
 
-def test_skewed_data_turn_to_a_and_brunner_munzel():
+def test_skewed_data_turn_to_a_and_the_mann_whitney_test():
     rng = np.random.default_rng(4)
     a, b = rng.lognormal(0.4, 1.0, 60), rng.lognormal(0.0, 1.0, 60)
     r = run(two(a, b))
     d = r.decision
     assert (d.branch, d.primary, d.test["name"]) == ("non_normal", "prob_superiority",
-                                                     "brunner_munzel")
+                                                     "mann_whitney")
     assert d.descriptives == "median_iqr_range"
-    ref = stats.brunnermunzel(a, b)
+    ref = stats.mannwhitneyu(a, b, use_continuity=False, method="asymptotic")  # 3600 pairs
     assert d.test["p"] == pytest.approx(ref.pvalue, rel=1e-9)
+    assert d.interval["method"] == "proportional_odds_score" and d.interval["agrees_with_test"]
     skew = next(e for e in next(x for x in d.reasons if x.rule == "non_normal").evidence
                 if e.statistic == "|skewness|" and e.met)
     assert skew.value >= 1.0 and skew.limit == 1.0
@@ -106,7 +107,7 @@ def test_heavy_ties_on_a_rating_scale_turn_to_a():
     r = run(two(a, b))
     d = r.decision
     assert (d.branch, d.primary, d.test["name"]) == ("heavy_ties", "prob_superiority",
-                                                     "brunner_munzel")
+                                                     "mann_whitney")
     ties = next(x for x in d.reasons if x.rule == "heavy_ties")
     assert any(e.statistic == "distinct values" and e.value == 6 and e.met for e in ties.evidence)
 
@@ -117,7 +118,7 @@ def test_one_dominant_extreme_case_turns_to_a_with_robust_d_beside_it():
     r = run(two(a, b))
     d = r.decision
     assert (d.branch, d.primary, d.test["name"]) == ("outliers", "prob_superiority",
-                                                     "brunner_munzel")
+                                                     "mann_whitney")
     assert "robust_d" in d.also_report
     line = 2 + 30 + 30  # the extreme case's line in the file (header = line 1)
     ev = next(x for x in d.reasons if x.rule == "outliers").evidence
