@@ -773,6 +773,19 @@ GROUP_TITLES = {"shift": "Medium effect (A about 0.64), n = {sizes}",
                 "near": "Near separation (normal, A = 0.90 to 0.99), n = {sizes}"}
 
 
+
+def _cell(stat, conservative: bool = True) -> str:
+    """One table cell: coverage % (mean width), marked sparse (given in fewer than SPARSE of the
+    data sets), bold below UNDER and, with `conservative`, italic above OVER."""
+    txt = f"{_pct(stat.cov)} ({_width(stat.width)})"
+    if stat.given < SPARSE:
+        return txt + " †"
+    if _shown(stat.cov) < UNDER:
+        return f"**{txt}**"
+    if conservative and _shown(stat.cov) > OVER:
+        return f"_{txt}_"
+    return txt
+
 def coverage_table(rows, cols, order, own, shown_composites) -> list[str]:
     """Coverage % (mean width) for the cells `cols`, one row per interval."""
     out = ["| index | interval | kind | " + " | ".join(_at(c) for c in cols) + " |",
@@ -788,15 +801,7 @@ def coverage_table(rows, cols, order, own, shown_composites) -> list[str]:
             if col not in row:
                 texts.append("-")
                 continue
-            stat = row[col]
-            txt = f"{_pct(stat.cov)} ({_width(stat.width)})"
-            if stat.given < SPARSE:
-                txt += " †"
-            elif _shown(stat.cov) < UNDER:
-                txt = f"**{txt}**"
-            elif _shown(stat.cov) > OVER:
-                txt = f"_{txt}_"
-            texts.append(txt)
+            texts.append(_cell(row[col]))
         out.append(f"| {LABELS[name]} | {METHOD_LABELS.get(method, method)} | "
                    f"{kind_of(name, method, own)} | " + " | ".join(texts) + " |")
     return out
@@ -813,12 +818,20 @@ def missing_table(cells, rows, cols, order, own, shown_composites) -> list[str]:
         row = rows[(name, method)]
         counts = [row[c].missing if c in row else cells[c].reps for c in cols]
         if any(counts):
-            out.append(f"| {LABELS[name]} | {METHOD_LABELS.get(method, method)} | "
-                       + " | ".join(str(x) if x else "" for x in counts) + " |")
-    if not out:
+            out.append(_count_row(LABELS[name], METHOD_LABELS.get(method, method), counts))
+    return _count_table("interval", cols, out)
+
+
+def _count_row(label: str, method: str, counts) -> str:
+    return f"| {label} | {method} | " + " | ".join(str(x) if x else "" for x in counts) + " |"
+
+
+def _count_table(second: str, cols, rows: list[str]) -> list[str]:
+    """A table of counts per cell (index, `second`, one column per cell), or nothing."""
+    if not rows:
         return []
-    return (["| index | interval | " + " | ".join(_at(c) for c in cols) + " |",
-             "| --- | --- |" + " ---: |" * len(cols)] + out)
+    return ([f"| index | {second} | " + " | ".join(_at(c) for c in cols) + " |",
+             "| --- | --- |" + " ---: |" * len(cols)] + rows)
 
 
 def withheld_table(cells, names, cols) -> list[str]:
@@ -850,12 +863,8 @@ def reported_mix_table(cells, names, cols, own) -> list[str]:
             continue
         for method in methods:
             counts = [int(np.count_nonzero(cells[c].reported_method[:, j] == method)) for c in cols]
-            out.append(f"| {LABELS[name]} | {method} | "
-                       + " | ".join(str(x) if x else "" for x in counts) + " |")
-    if not out:
-        return []
-    return (["| index | reported method | " + " | ".join(_at(c) for c in cols) + " |",
-             "| --- | --- |" + " ---: |" * len(cols)] + out)
+            out.append(_count_row(LABELS[name], method, counts))
+    return _count_table("reported method", cols, out)
 
 
 def render(cells, plan, resamples, seed, workers, seconds, truths, checks, level=LEVEL,
@@ -1244,13 +1253,8 @@ def superiority_near(ctx: Context) -> list[str]:
                 texts.append("- [100%]")
                 continue
             s = row[c]
-            txt = f"{_pct(s.cov)} ({_width(s.width)})"
-            if s.given < SPARSE:
-                txt += " †"
-            elif _shown(s.cov) < UNDER:
-                txt = f"**{txt}**"
-            out_txt = txt + (f" [{_share(1 - s.given)}%]" if s.missing else "")
-            texts.append(out_txt)
+            texts.append(_cell(s, conservative=False)
+                         + (f" [{_share(1 - s.given)}%]" if s.missing else ""))
         out.append(f"| {METHOD_LABELS.get(m, m)} | {kind_of(name, m, ctx.own)} | "
                    + " | ".join(texts) + " |")
     j = ctx.names.index(name)
