@@ -85,6 +85,11 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--out", metavar="DIR", nargs="?", const="",
                        help="write report.html, report.md, audit.json and the figures into DIR"
                             " (--out alone: reports/<outcome>/)")
+    check.add_argument("--margin", action="append", metavar="INDEX=VALUE",
+                       help="smallest effect size of interest of an index, on its own scale"
+                            " (repeatable; overrides the policy's [margins]), e.g."
+                            " --margin cohen_d=0.3 --margin mean_difference=2.5: two one-sided"
+                            " tests and a verdict at that margin")
     check.add_argument("--coverage-check", action="store_true", default=None,
                        help="estimate how often the primary index's interval covers its true"
                             " value in populations shaped like these data (smoothed bootstrap;"
@@ -238,12 +243,18 @@ def _write_text(path: Path, text: str) -> None:
 
 
 def _check(args) -> int:
+    from auditor.errors import AuditError
+    from auditor.margins import parse_margin_options
     from auditor.pipeline import audit
     from auditor.policy import load_policy
     from auditor.render import terminal_summary, to_json
 
     policy = load_policy(args.policy)
     _refuse_overwriting_the_data(args)  # before the audit, not after minutes of work
+    try:
+        margins = parse_margin_options(args.margin)
+    except ValueError as err:
+        raise AuditError(str(err)) from None
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # every condition is reported in the result itself
@@ -252,7 +263,7 @@ def _check(args) -> int:
             subject=args.subject, paired_columns=args.paired,
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
-            coverage_check=args.coverage_check,
+            coverage_check=args.coverage_check, margins=margins,
         )
     document = to_json(result)
     if args.out is not None:

@@ -21,6 +21,7 @@ from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effec
 from auditor.errors import DesignError, UndefinedEffectWarning
 from auditor.influence import Units, influence_table, with_fragility
 from auditor.load import Table, column_position, read_table
+from auditor.margins import equivalence_records, margins_for
 from auditor.parametric import Estimate
 from auditor.policy import Policy, load_policy
 from auditor.rationale import CAUTION
@@ -64,7 +65,8 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
           level: float | None = None, resamples: int | None = None,
           seed: int | None = None, reference: str | None = None,
           progress: Progress = None, policy=None, scope: str = "full",
-          coverage_check: bool | None = None) -> AuditResult:
+          coverage_check: bool | None = None,
+          margins: dict[str, float] | None = None) -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -85,6 +87,10 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     comparisons and no texts. Every number a screen row shows equals the full run's; so do the
     estimates and intervals, while the outlier check's index, rechecked only for the extreme
     cases, says so in its interval rule.
+
+    `margins` (index -> smallest effect of interest; overrides the policy's `[margins]`) asks
+    the question of size: two one-sided tests and a verdict per index with a margin
+    (`with_equivalence`, in the full and the screen scope).
 
     `coverage_check` (default: the policy's `intervals.coverage_check`) adds the estimated
     coverage of the primary index's quoted interval on populations shaped like the data
@@ -137,7 +143,62 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
             raise DesignError("--reference applies to two independent groups only")
         else:
             result = _audit_k_groups(design, **settings)
+    result = with_equivalence(result, policy, margins or {})
+    if result.design == "two_independent":
+        result = dataclasses.replace(result, conversions=scale_conversions(result))
     return with_coverage_check(result, policy) if coverage else result
+
+
+def with_equivalence(result: AuditResult, policy: Policy,
+                     given: dict[str, float]) -> AuditResult:
+    """The result with `equivalence`: for every index with a margin (the command line's
+    `given`, else the policy's `[margins]` by index or family), the two one-sided tests at that
+    margin and their verdict (`margins.equivalence_records`); the rationale and the methods
+    sentence then quote the primary index's."""
+    known = {e.name for e in result.effects}
+    unknown = sorted(set(given) - known)
+    if unknown:
+        raise DesignError(f"--margin {unknown[0]}: not an index of this design; use one of"
+                          f" {', '.join(e.name for e in result.effects)}")
+    chosen = margin_choice(result.effects, policy, given)
+    if not chosen or result.samples is None:
+        return result
+    if result.design == "paired":
+        samples = (result.samples.differences,)
+    else:
+        samples = tuple(result.samples.values)
+    records = equivalence_records(result.design, samples, chosen, result.settings.level,
+                                  policy.settings["margins"].get("justification"))
+    result = dataclasses.replace(result, equivalence=records)
+    decision = result.decision
+    if decision is None or result.settings.scope == "screen":
+        return result
+    decision = dataclasses.replace(
+        decision, rationale=rationale.rationale(result, decision, policy),
+        methods_sentence=rationale.methods_sentence(result, decision, policy))
+    return dataclasses.replace(result, decision=decision)
+
+
+def scale_conversions(result: AuditResult):
+    """Two groups: d, A, delta, r and the log odds ratio converted into one another, each with
+    the assumption that makes it exact and its gap to the directly estimated index
+    (`conversions.conversion_table`)."""
+    from auditor.conversions import conversion_table
+
+    value = {e.name: e.estimate for e in result.effects}
+    n_a, n_b = (g.n for g in result.groups)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # an undefined conversion carries its reason
+        return conversion_table(value["cohen_d"], value["prob_superiority"], n_a, n_b,
+                                value["cliff_delta"], d_unpooled=value["d_unpooled"])
+
+
+def margin_choice(effects, policy: Policy, given: dict[str, float]):
+    """index -> (margin, its source) for the defined effects (`margins.margins_for`)."""
+    names = [e.name for e in effects if e.estimate is not None]
+    families = {e.name: e.family for e in effects}
+    table = {k: v for k, v in policy.settings["margins"].items() if k != "justification"}
+    return margins_for(names, families, table, given)
 
 
 COVERAGE_STREAM = 8  # spawn key of the random stream the coverage check draws from

@@ -248,7 +248,7 @@ def _type_name(types) -> str:
 def _check(data: dict, source: str) -> dict:
     """Validate a parsed policy and return it with nothing missing (see module docstring)."""
     schema = _schema()
-    sections = ["name", "version", *schema, *DESIGNS, "magnitude"]
+    sections = ["name", "version", *schema, *DESIGNS, "magnitude", "margins"]
     for key in data:
         if key not in sections:
             _unknown(source, "", key, sections)
@@ -285,6 +285,35 @@ def _check(data: dict, source: str) -> dict:
     for design in DESIGNS:
         out[design] = _check_design(data.get(design), design, source)
     out["magnitude"] = _check_magnitude(data.get("magnitude"), source)
+    out["margins"] = _check_margins(data.get("margins", {}), source)
+    return out
+
+
+MARGIN_FAMILIES = ("mean", "standardized_mean", "dominance", "shift", "variance_explained",
+                   "agreement")
+
+
+def _check_margins(table, source: str) -> dict:
+    """[margins]: the smallest effect size of interest, by index name (any design) or by family,
+    each a positive number on the index's own scale (A: the distance from 0.5), and an optional
+    `justification` text that the methods sentence quotes. Optional: a policy without it asks no
+    question of size."""
+    if not isinstance(table, dict):
+        _fail(source, "margins", "a table of INDEX = margin (e.g. cohen_d = 0.3)")
+    names = sorted({i for d in INDICES.values() for i in d}) + list(MARGIN_FAMILIES)
+    out: dict[str, Any] = {}
+    for key, value in table.items():
+        if key == "justification":
+            if not isinstance(value, str) or not value.strip():
+                _fail(source, "margins.justification", "text saying why these margins")
+            out[key] = value.strip()
+            continue
+        if key not in names:
+            _unknown(source, "margins.", key, names + ["justification"])
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
+            _fail(source, f"margins.{key}", f"{value!r} is not a positive number; give the"
+                  " smallest effect of interest on the index's own scale, e.g. 0.3")
+        out[key] = float(value)
     return out
 
 

@@ -191,7 +191,34 @@ def rationale(result, decision, policy: Policy) -> str:
                 f" ({_interval_text(decision.interval, dec)}{size}): "
                 f"{meaning(decision.primary, primary.estimate, labels, result.outcome, dec)}.")
     test = f"Test: {_test_text(decision.test, dec)}."
-    return " ".join([why, estimate, test])
+    size = size_text(result, decision.primary, dec)
+    return " ".join([why, estimate, test] + ([size] if size else []))
+
+
+def _p_text(p: float | None, decimals: int) -> str:
+    if p is None:
+        return "n/a"
+    return "< 0.001" if p < 0.001 else f"= {p:.{max(decimals + 1, 3)}f}"
+
+
+def size_text(result, name: str, decimals: int = 2) -> str:
+    """The question of size for index `name` in one sentence (margins.py), or ''."""
+    record = (getattr(result, "equivalence", None) or {}).get(name)
+    if not record:
+        return ""
+    m = fmt(record["margin"], decimals)
+    why = f"; {record['justification']}" if record.get("justification") else ""
+    head = (f"Smallest effect of interest for {NAMES[name]}: {m} ({record['margin_from']}"
+            f"{why})")
+    if record.get("reason") or record.get("verdict") is None:
+        return f"{head}: no verdict ({record.get('reason', 'the tests are undefined here')})."
+    level = f"{record['interval_level'] * 100:g}%"
+    return (f"{head}: {record['verdict_text']} (two one-sided tests p"
+            f" {_p_text(record['p_tost'], decimals)}, test of no effect p"
+            f" {_p_text(record['p_difference'], decimals)}; {level} interval"
+            f" {fmt(record['interval_low'], decimals)} to {fmt(record['interval_high'], decimals)}"
+            f" against the bounds {fmt(record['margin_low'], decimals)} and"
+            f" {fmt(record['margin_high'], decimals)}).")
 
 
 def reviewer_note(result, decision, policy: Policy) -> str:
@@ -302,5 +329,17 @@ def methods_sentence(result, decision, policy: Policy) -> str:
             + (" (which agrees with the test by construction)" if iv.get("matched_to_test")
                else "")
             + (f", reported beside {also}" if also else "")
-            + f"; the test was the {decision.test['label']}; bootstrap intervals used"
+            + f"; the test was the {decision.test['label']}"
+            + _size_clause(result, decision.primary)
+            + f"; bootstrap intervals used"
             f" {s.bootstrap_resamples} stratified resamples (BCa) with seed {s.seed}.")
+
+
+def _size_clause(result, name: str) -> str:
+    record = (getattr(result, "equivalence", None) or {}).get(name)
+    if not record or record.get("verdict") is None:
+        return ""
+    why = f" ({record['justification']})" if record.get("justification") else ""
+    return (f"; equivalence and minimal-effect questions were asked at a smallest effect of"
+            f" interest of {record['margin']:g}{why} by two one-sided tests at alpha ="
+            f" {record['alpha']:g}")

@@ -326,6 +326,8 @@ class AuditResult(_Plain):
     decision: Any = None  # decide.Decision
     policy: dict | None = None  # name, version, sha256 and source of the policy applied
     coverage_check: Any = None  # coverage_check.CoverageCheck of the primary index, when asked
+    equivalence: dict = field(default_factory=dict)  # index -> its question of size (margins.py)
+    conversions: Any = None  # conversions.Conversions (two groups)
     samples: Samples | None = field(default=None, repr=False, compare=False)
 
     @property
@@ -374,6 +376,8 @@ class AuditResult(_Plain):
             "policy": self.policy,
             "coverage_check": (None if self.coverage_check is None
                                else self.coverage_check.to_dict()),
+            "equivalence": plain(self.equivalence),
+            "conversions": None if self.conversions is None else self.conversions.to_dict(),
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

@@ -1,0 +1,103 @@
+"""Questions of size: the smallest effect of interest and the equivalence verdicts at it.
+
+A margin is the smallest effect size of interest on an index's own scale, written once in the
+team's policy (`[margins]`, by index name or by family) or given on the command line
+(`--margin INDEX=VALUE`, which overrides the policy). For every index of the audit that has a
+margin and a two-one-sided-tests procedure (`equivalence.py`), the audit reports the two
+one-sided tests against the bounds no-effect -/+ margin, the 1 - 2 alpha interval and one of four
+verdicts (Lakens 2017; Lakens, Scheel & Isager 2018). The tests run at alpha = 1 - level of the
+audit, so their interval is the 1 - 2 alpha one (90% beside the audit's 95% intervals), as
+Schuirmann (1987) and Lakens (2017) pair them.
+
+An index with a margin but no procedure gets a record saying so, never a silent gap.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+
+import numpy as np
+
+from auditor import equivalence as eq
+from auditor.equivalence import VERDICTS
+
+# design -> index -> the two-one-sided-tests function, called on the design's samples
+PROCEDURES = {
+    "two_independent": {
+        "mean_difference": lambda s, m, a: eq.mean_difference_tost(s[0], s[1], m, a),
+        "cohen_d": lambda s, m, a: eq.cohen_d_tost(s[0], s[1], m, a),
+        "hedges_g": lambda s, m, a: eq.hedges_g_tost(s[0], s[1], m, a),
+        "prob_superiority": lambda s, m, a: eq.prob_superiority_tost(s[0], s[1], m, a),
+    },
+    "paired": {
+        "mean_difference": lambda s, m, a, digits=12: eq.paired_mean_difference_tost(
+            s[0], m, a, digits=digits),
+        "d_z": lambda s, m, a, digits=12: eq.d_z_tost(s[0], m, a, digits=digits),
+    },
+}
+NOT_AVAILABLE = ("no test against a non-zero null is built for this index yet; its interval"
+                 " can still be read against the margin")
+
+
+def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[str, float],
+                given: Mapping[str, float]) -> dict[str, tuple[float, str]]:
+    """index -> (margin, where it came from) for the audit's indices: a command-line margin
+    (`given`) first, then the policy's for the index, then the policy's for its family."""
+    out = {}
+    for name in effects:
+        if name in given:
+            out[name] = (float(given[name]), "command line")
+        elif name in policy_margins:
+            out[name] = (float(policy_margins[name]), "policy")
+        elif families.get(name) in policy_margins:
+            out[name] = (float(policy_margins[families[name]]),
+                         f"policy (family {families[name]})")
+    return out
+
+
+def equivalence_records(design: str, samples, margins: Mapping[str, tuple[float, str]],
+                        level: float, justification: str | None,
+                        digits: int = 12) -> dict[str, dict]:
+    """index -> the JSON record of its equivalence question: the margin used and where it came
+    from, the policy's justification, and the two one-sided tests (`equivalence.py`) at
+    alpha = 1 - level, or the reason none is available."""
+    out = {}
+    alpha = 1.0 - level
+    for name, (margin, source) in margins.items():
+        record = {"margin": margin, "margin_from": source, "justification": justification,
+                  "alpha": alpha}
+        procedure = PROCEDURES.get(design, {}).get(name)
+        if procedure is None:
+            record["reason"] = NOT_AVAILABLE
+        elif not 0.0 < alpha < 0.5:
+            record["reason"] = (f"the audit's level {level:g} leaves no one-sided level below"
+                                " one half for the two one-sided tests")
+        else:
+            with np.errstate(all="ignore"):
+                found = (procedure(samples, margin, alpha, digits) if design == "paired"
+                         else procedure(samples, margin, alpha))
+            record.update(found.to_dict())
+            record["verdict_text"] = VERDICTS.get(found.verdict) if found.verdict else None
+        out[name] = record
+    return out
+
+
+FAMILIES = ("mean", "standardized_mean", "dominance", "shift", "variance_explained", "agreement")
+
+
+def parse_margin_options(options) -> dict[str, float]:
+    """`--margin INDEX=VALUE` options (repeatable) -> {index: value}; a ValueError naming the
+    option when one is malformed or not a positive number."""
+    out = {}
+    for option in options or ():
+        name, sep, text = str(option).partition("=")
+        name = name.strip()
+        try:
+            value = float(text)
+        except ValueError:
+            value = float("nan")
+        if not sep or not name or not (value > 0 and np.isfinite(value)):
+            raise ValueError(f"--margin '{option}': give INDEX=VALUE with a positive number,"
+                             " e.g. --margin cohen_d=0.3")
+        out[name] = value
+    return out

@@ -1,0 +1,134 @@
+"""The question of size through the audit: margins from the policy or the command line, the two
+one-sided tests per index with a margin, the verdict in the texts.
+
+The tests themselves are checked against statsmodels in tests/references/test_equivalence_reference.py;
+here the audit must report exactly what `auditor.equivalence` computes on the same samples, say
+where each margin came from, and refuse a malformed margin in one line.
+"""
+
+from __future__ import annotations
+
+import json
+import warnings
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from auditor import equivalence as eq
+from auditor.errors import DesignError
+from auditor.margins import NOT_AVAILABLE, parse_margin_options
+from auditor.pipeline import audit
+from auditor.policy import PolicyError, default_text, parse_policy
+
+RNG = np.random.default_rng(31)
+A = np.round(RNG.normal(10.4, 2, 40), 2)
+B = np.round(RNG.normal(10.0, 2, 45), 2)
+TWO = pd.DataFrame({"y": np.r_[A, B], "g": ["a"] * 40 + ["b"] * 45})
+BEFORE = np.round(RNG.normal(30, 4, 25), 1)
+PAIRS = pd.DataFrame({"pre": BEFORE, "post": np.round(BEFORE - RNG.normal(0.2, 1, 25), 1)})
+
+
+def run(frame, **kw):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return audit(frame, resamples=200, seed=2, **kw)
+
+
+def policy_with(margins: str):
+    return parse_policy(default_text() + "\n[margins]\n" + margins + "\n", "with margins")
+
+
+def test_no_margin_asks_no_question_of_size():
+    result = run(TWO, outcome="y", group="g")
+    assert result.equivalence == {} and result.to_dict()["equivalence"] == {}
+    assert "Smallest effect of interest" not in result.decision.rationale
+
+
+def test_command_line_margins_give_exactly_the_two_one_sided_tests():
+    result = run(TWO, outcome="y", group="g",
+                 margins={"cohen_d": 0.3, "mean_difference": 1.5, "prob_superiority": 0.08})
+    records = result.to_dict()["equivalence"]
+    expected = {"cohen_d": eq.cohen_d_tost(A, B, 0.3, 0.05),
+                "mean_difference": eq.mean_difference_tost(A, B, 1.5, 0.05),
+                "prob_superiority": eq.prob_superiority_tost(A, B, 0.08, 0.05)}
+    for name, ref in expected.items():
+        record = records[name]
+        assert record["margin_from"] == "command line" and record["alpha"] == pytest.approx(0.05)
+        assert record["verdict"] == ref.verdict, name
+        for key in ("p_lower", "p_upper", "p_tost", "p_difference", "interval_low",
+                    "interval_high"):
+            assert record[key] == pytest.approx(getattr(ref, key), rel=1e-12), (name, key)
+    json.dumps(records, allow_nan=False)
+
+
+def test_policy_margins_by_index_and_by_family_with_the_justification_quoted():
+    policy = policy_with('standardized_mean = 0.25\nprob_superiority = 0.06\n'
+                         'justification = "half the smallest change the clinic acts on"')
+    result = run(TWO, outcome="y", group="g", policy=policy, margins={"hedges_g": 0.4})
+    eqv = result.equivalence
+    assert eqv["cohen_d"]["margin"] == 0.25 and "family" in eqv["cohen_d"]["margin_from"]
+    assert eqv["hedges_g"]["margin"] == 0.4 and eqv["hedges_g"]["margin_from"] == "command line"
+    assert eqv["prob_superiority"]["margin_from"] == "policy"
+    assert eqv["glass_delta"]["reason"] == NOT_AVAILABLE  # a family margin, no procedure yet
+    primary = result.decision.primary
+    if primary in eqv and eqv[primary].get("verdict"):
+        assert "Smallest effect of interest" in result.decision.rationale
+        assert "half the smallest change the clinic acts on" in result.decision.methods_sentence
+
+
+def test_paired_margins_use_the_rounded_differences():
+    result = run(PAIRS, paired_columns=["pre", "post"], margins={"d_z": 0.5, "ps_dep": 0.1})
+    d = result.samples.differences
+    ref = eq.d_z_tost(d, 0.5, 0.05)
+    assert result.equivalence["d_z"]["p_tost"] == pytest.approx(ref.p_tost, rel=1e-12)
+    assert result.equivalence["ps_dep"]["reason"] == NOT_AVAILABLE
+
+
+def test_a_margin_for_an_index_the_design_does_not_have_is_refused():
+    with pytest.raises(DesignError, match="--margin d_z: not an index of this design"):
+        run(TWO, outcome="y", group="g", margins={"d_z": 0.3})
+
+
+@pytest.mark.parametrize("option", ["cohen_d", "cohen_d=", "=0.3", "cohen_d=-1", "cohen_d=x",
+                                    "cohen_d=nan", "cohen_d=inf"])
+def test_malformed_margin_options_are_one_line_errors(option):
+    with pytest.raises(ValueError, match="give INDEX=VALUE with a positive number"):
+        parse_margin_options([option])
+
+
+@pytest.mark.parametrize("body, fragment", [
+    ("cohen_d = -0.2", "margins.cohen_d"),
+    ("cohen_dd = 0.2", "did you mean 'cohen_d'"),
+    ('justification = ""', "margins.justification"),
+    ("cohen_d = true", "margins.cohen_d"),
+])
+def test_bad_policy_margins_name_the_key(body, fragment):
+    with pytest.raises(PolicyError, match=fragment):
+        policy_with(body)
+
+
+def test_the_command_line_takes_margins_and_refuses_bad_ones(run_cli, tmp_path):
+    path = tmp_path / "two.csv"
+    TWO.to_csv(path, index=False)
+    res = run_cli("check", path, "--outcome", "y", "--group", "g", "--boot", "200", "--json", "-",
+                  "--quiet", "--margin", "cohen_d=0.3", "--margin", "mean_difference=1.5")
+    assert res.code == 0, res.err
+    doc = json.loads(res.out)
+    assert set(doc["equivalence"]) == {"cohen_d", "mean_difference"}
+    bad = run_cli("check", path, "--outcome", "y", "--group", "g", "--margin", "cohen_d=big")
+    assert bad.code == 1 and bad.err.startswith("auditor: error: --margin 'cohen_d=big'")
+    assert "Traceback" not in bad.err and bad.err.count("\n") == 1
+
+
+def test_two_group_audits_carry_the_scale_conversions_of_their_own_estimates():
+    from auditor.conversions import conversion_table
+
+    result = run(TWO, outcome="y", group="g")
+    value = {e.name: e.estimate for e in result.effects}
+    expected = conversion_table(value["cohen_d"], value["prob_superiority"], 40, 45,
+                                value["cliff_delta"], d_unpooled=value["d_unpooled"])
+    assert result.to_dict()["conversions"] == expected.to_dict()
+    link = result.conversions.link("prob_superiority_from_cohen_d")
+    assert link.gap == pytest.approx(value["prob_superiority"] - link.value, abs=1e-15)
+    assert run(PAIRS, paired_columns=["pre", "post"]).to_dict()["conversions"] is None
