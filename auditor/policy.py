@@ -469,6 +469,12 @@ def describe(policy: Policy) -> str:
         for name, b in sorted(s["magnitude"].items()):
             lines.append(f"- {name}: {b['small']:g} / {b['medium']:g} / {b['large']:g}"
                          f" ({b['source']})")
+    margins = {k: v for k, v in s.get("margins", {}).items() if k != "justification"}
+    if margins:
+        why = s["margins"].get("justification")
+        lines += ["", "Smallest effects of interest (two one-sided tests and a verdict at each):"
+                  + (f" {why}." if why else "")]
+        lines += [f"- {name}: {value:g}" for name, value in sorted(margins.items())]
     return "\n".join(lines) + "\n"
 
 

@@ -56,7 +56,8 @@ FIELDS = (
     "heavy_ties", "outliers", "small_sample", "branch", "primary", "estimate", "ci_low", "ci_high",
     "magnitude", "cohen_d", "cohen_d_low", "cohen_d_high", "prob_superiority",
     "prob_superiority_low", "prob_superiority_high", "normal_theory_gap", "fragility",
-    "most_influential_row", "test", "statistic", "df", "p", "p_holm", "p_bh", "seed",
+    "most_influential_row", "size_verdict", "test", "statistic", "df", "p", "p_holm", "p_bh",
+    "seed",
 )
 
 
@@ -144,6 +145,9 @@ def summary_row(result, seed: int, policy=None) -> dict:
     check = getattr(result.diagnostics, "normal_theory", None)
     if check is not None:
         row["normal_theory_gap"] = check.gap
+    size = (result.equivalence or {}).get(d.primary)
+    if size is not None:  # the question of size at the policy's margin (margins.py)
+        row["size_verdict"] = size.get("verdict") or "not available"
     if result.influence is not None:
         summary = next((e for e in result.influence.effects if e.effect == d.primary), None)
         if summary is not None:
@@ -536,7 +540,8 @@ _HTML_COLUMNS = (("outcome", "outcome"), ("status", "status"), ("n", "n"),
                  ("estimate", "estimate"), ("interval", "interval"), ("magnitude", "label"),
                  ("cohen_d", "mean-based"), ("prob_superiority", "rank-based"),
                  ("normal_theory_gap", "normal-theory gap"), ("fragility", "fragility"),
-                 ("most_influential_row", "most influential line"), ("test", "test"),
+                 ("most_influential_row", "most influential line"),
+                 ("size_verdict", "at the margin"), ("test", "test"),
                  ("p", "p"), ("p_holm", "p (Holm)"), ("p_bh", "p (BH)"))
 
 

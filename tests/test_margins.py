@@ -132,3 +132,25 @@ def test_two_group_audits_carry_the_scale_conversions_of_their_own_estimates():
     link = result.conversions.link("prob_superiority_from_cohen_d")
     assert link.gap == pytest.approx(value["prob_superiority"] - link.value, abs=1e-15)
     assert run(PAIRS, paired_columns=["pre", "post"]).to_dict()["conversions"] is None
+
+
+def test_the_screen_shows_the_primary_index_s_verdict_at_the_policy_s_margin(tmp_path):
+    from auditor.screen import run_screen
+
+    frame = TWO.assign(z=np.round(RNG.normal(0, 1, 85), 2))
+    policy = policy_with("standardized_mean = 0.3\nprob_superiority = 0.08\nmean = 1.0")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        rows, _ = run_screen(frame, group="g", policy=policy, resamples=200)
+    assert rows
+    for row in rows:
+        result = run(frame, outcome=row["outcome"], group="g", policy=policy)
+        expected = result.equivalence[result.decision.primary]["verdict"]
+        assert row["size_verdict"] == expected, row["outcome"]
+
+
+def test_policy_show_lists_the_margins_with_their_justification():
+    from auditor.policy import describe
+
+    text = describe(policy_with('cohen_d = 0.3\njustification = "a tenth of the scale"'))
+    assert "- cohen_d: 0.3" in text and "a tenth of the scale" in text
