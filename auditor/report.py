@@ -208,6 +208,22 @@ def _effect_rows(result, benchmarks=None):
     return head, rows
 
 
+def _conversion_lines(result) -> list[str]:
+    """Under the effects table (two groups): each conversion between scales whose gap to the
+    directly estimated index passes its limit, with the assumption that would make it exact."""
+    conv = getattr(result, "conversions", None)
+    if conv is None:
+        return []
+    out = []
+    for link in conv.links:
+        if link.flagged:
+            out.append(f"Converting {NAMES.get(link.source, link.source)} to"
+                       f" {NAMES.get(link.target, link.target)} ({link.formula}) would mislead"
+                       f" here: {_n(link.value)} against {_n(link.direct)} estimated directly"
+                       f" (gap {_n(link.gap)}); it is exact only for {link.exact_if}.")
+    return out
+
+
 def _interval_lines(result) -> list[str]:
     """Under the effects table: each withheld bootstrap with its reason, and each interval
     computed beside an index's own (test-matched or boundary-valid ones)."""
@@ -340,7 +356,7 @@ def render_html(result, figures=()) -> str:
             level = result.settings.level
             body.append(f"<p>{_e(f'{level * 100:g}% intervals; the primary index is in bold;')}"
                         f" {_e('labels are conventional benchmarks (see the policy).')}</p>")
-            lines = _interval_lines(result)
+            lines = _interval_lines(result) + _conversion_lines(result)
             if lines:
                 body.append('<ul class="intervals">'
                             + "".join(f"<li>{_e(x)}</li>" for x in lines) + "</ul>")
@@ -431,7 +447,7 @@ def render_markdown(result, figures=(), figure_folder: str = "figures") -> str:
         elif key == "effects":
             head, rows = _effect_rows(result)
             out += _md_table(head, [r for r, _ in rows], [p for _, p in rows]) + [""]
-            lines = _interval_lines(result)
+            lines = _interval_lines(result) + _conversion_lines(result)
             out += [f"- {_m(x)}" for x in lines] + ([""] if lines else [])
         elif key == "influence":
             head, rows = _influence_rows(result)

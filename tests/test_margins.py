@@ -154,3 +154,17 @@ def test_policy_show_lists_the_margins_with_their_justification():
 
     text = describe(policy_with('cohen_d = 0.3\njustification = "a tenth of the scale"'))
     assert "- cohen_d: 0.3" in text and "a tenth of the scale" in text
+
+
+def test_a_misleading_conversion_is_named_in_the_report():
+    from auditor.report import render_markdown
+
+    rng = np.random.default_rng(5)
+    a, b = np.round(rng.lognormal(1.0, 1.6, 60), 2), np.round(rng.lognormal(0, 1.6, 60), 2)
+    result = run(pd.DataFrame({"y": np.r_[a, b], "g": ["a"] * 60 + ["b"] * 60}),
+                 outcome="y", group="g")
+    flagged = [link for link in result.conversions.links if link.flagged]
+    text = render_markdown(result)
+    assert flagged, [(link.key, link.gap) for link in result.conversions.links]
+    for link in flagged:
+        assert f"({link.formula}) would mislead here" in text.replace("\\", "")
