@@ -175,6 +175,7 @@ def with_equivalence(result: AuditResult, policy: Policy,
         return result
     decision = dataclasses.replace(
         decision, rationale=rationale.rationale(result, decision, policy),
+        reviewer_note=rationale.reviewer_note(result, decision, policy),
         methods_sentence=rationale.methods_sentence(result, decision, policy))
     return dataclasses.replace(result, decision=decision)
 

@@ -262,6 +262,9 @@ def reviewer_note(result, decision, policy: Policy) -> str:
                             " value into its interval")
                 parts.append(f"Fragility of {NAMES[name]}: {text}.")
     parts += _interval_remarks(result, decision, dec)
+    size = size_text(result, decision.primary, dec)
+    if size:
+        parts.append("Is the effect large enough to matter? " + size)
     return " ".join(parts)
 
 

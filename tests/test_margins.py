@@ -74,6 +74,7 @@ def test_policy_margins_by_index_and_by_family_with_the_justification_quoted():
     primary = result.decision.primary
     if primary in eqv and eqv[primary].get("verdict"):
         assert "Smallest effect of interest" in result.decision.rationale
+        assert "Is the effect large enough to matter?" in result.decision.reviewer_note
         assert "half the smallest change the clinic acts on" in result.decision.methods_sentence
 
 
