@@ -170,14 +170,9 @@ def with_equivalence(result: AuditResult, policy: Policy,
     records = equivalence_records(result.design, samples, chosen, result.settings.level,
                                   policy.settings["margins"].get("justification"))
     result = dataclasses.replace(result, equivalence=records)
-    decision = result.decision
-    if decision is None or result.settings.scope == "screen":
+    if result.decision is None or result.settings.scope == "screen":
         return result
-    decision = dataclasses.replace(
-        decision, rationale=rationale.rationale(result, decision, policy),
-        reviewer_note=rationale.reviewer_note(result, decision, policy),
-        methods_sentence=rationale.methods_sentence(result, decision, policy))
-    return dataclasses.replace(result, decision=decision)
+    return with_texts(result, policy)
 
 
 def scale_conversions(result: AuditResult):
@@ -376,10 +371,16 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     result = dataclasses.replace(result, decision=decision, policy=policy.stamp(), samples=kept)
     if screen:
         return result
+    return with_texts(result, policy)
+
+
+def with_texts(result: AuditResult, policy: Policy) -> AuditResult:
+    """The result with its decision's texts written from it (`rationale`): the rationale, the
+    reviewer note and the methods sentence."""
     decision = dataclasses.replace(
-        decision, rationale=rationale.rationale(result, decision, policy),
-        reviewer_note=rationale.reviewer_note(result, decision, policy),
-        methods_sentence=rationale.methods_sentence(result, decision, policy))
+        result.decision, rationale=rationale.rationale(result, result.decision, policy),
+        reviewer_note=rationale.reviewer_note(result, result.decision, policy),
+        methods_sentence=rationale.methods_sentence(result, result.decision, policy))
     return dataclasses.replace(result, decision=decision)
 
 
