@@ -158,6 +158,9 @@ def build_parser() -> argparse.ArgumentParser:
                      help="bootstrap resamples per outcome (default: the policy's)")
     scr.add_argument("--seed", type=int, default=None, help="seed (default: the policy's)")
     scr.add_argument("--level", type=float, default=None, help="confidence level")
+    scr.add_argument("--margin", action="append", metavar="INDEX=VALUE",
+                     help="smallest effect size of interest of an index (repeatable; overrides"
+                          " the policy's [margins]): the row's size_verdict column")
     scr.add_argument("--out", metavar="DIR", default="reports/screen",
                      help="folder for screen.csv, screen.json, screen.html (default"
                           " reports/screen)")
@@ -303,7 +306,14 @@ def _refuse_overwriting_the_data(args) -> None:
 
 def _screen(args) -> int:
     from auditor.design import parse_group_list
+    from auditor.errors import AuditError
+    from auditor.margins import parse_margin_options
     from auditor.screen import MULTIPLE_OUTCOMES_NOTE, run_screen
+
+    try:
+        margins = parse_margin_options(args.margin)
+    except ValueError as err:
+        raise AuditError(str(err)) from None
 
     def names(text, option):
         return None if text is None else parse_group_list(text, option)
@@ -321,7 +331,7 @@ def _screen(args) -> int:
         outcomes=names(args.outcomes, "--outcomes"), exclude=names(args.exclude, "--exclude"),
         policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
         jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
-        progress=progress)
+        progress=progress, margins=margins)
     if not args.quiet:
         print(f"{files.rows} outcome(s) screened; {len(skipped)} column(s) skipped")
         for column, reason in skipped:

@@ -41,6 +41,7 @@ from auditor.errors import AuditError, DesignError, InputFileError
 from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
 from auditor.decide import quoted_interval
 from auditor.pipeline import SCREEN_COMPANIONS
+from auditor.policy import INDICES
 
 MULTIPLE_OUTCOMES_NOTE = (
     "Screening many outcomes inflates false positives: with 20 independent outcomes and no real"
@@ -175,6 +176,7 @@ class _Job:
     level: float | None
     report_folder: str | None
     report_names: dict | None = None  # outcome -> its own folder name (never shared)
+    margins: tuple[tuple[str, float], ...] = ()  # --margin INDEX=VALUE, over the policy's
 
 
 _WORKER_JOB: _Job | None = None
@@ -242,7 +244,8 @@ def audit_one(job: _Job, outcome: str, table: Table) -> dict:
             result = audit(table, outcome=outcome, group=job.group,
                            groups=list(job.groups) if job.groups else None, subject=job.subject,
                            policy=job.policy, seed=seed, resamples=job.resamples, level=job.level,
-                           scope="full" if job.report_folder else "screen")
+                           scope="full" if job.report_folder else "screen",
+                           margins=dict(job.margins))
     except AuditError as exc:
         return _failed_row(outcome, str(exc), seed)
     except Exception as exc:  # noqa: BLE001 - one outcome's failure must not end the screen
@@ -371,7 +374,8 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                exclude=None, policy=None, seed: int | None = None, resamples: int | None = None,
                level: float | None = None, jobs: int = 1, out: Path | None = None,
                sort: str = "column", reports: bool = False,
-               progress: Callable[[int, int, str], None] | None = None):
+               progress: Callable[[int, int, str], None] | None = None,
+               margins: dict[str, float] | None = None):
     """Screen every outcome; write screen.csv, screen.json and screen.html into `out` when given.
     Returns (rows as a list of dicts in the chosen order, skipped columns)."""
     from auditor.pipeline import table_from_frame
@@ -421,8 +425,14 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         if out is None:
             raise DesignError("--reports needs --out: the reports are written beside the screen")
         report_folder = str(Path(out) / "reports")
+    known = {name for table in INDICES.values() for name in table}
+    for name in sorted(margins or {}):
+        if name not in known:
+            raise DesignError(f"--margin {name}: not an index; use one of"
+                              f" {', '.join(sorted(known))}")
     job = _Job(path, stamp, group, tuple(groups) if groups else None, subject, policy, seed,
-               resamples, level, report_folder, _report_names(looked_at) if reports else None)
+               resamples, level, report_folder, _report_names(looked_at) if reports else None,
+               tuple(sorted((margins or {}).items())))
     spool = io.StringIO() if out is None else None
     if out is not None:
         Path(out).mkdir(parents=True, exist_ok=True)

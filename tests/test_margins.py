@@ -169,3 +169,17 @@ def test_a_misleading_conversion_is_named_in_the_report():
     assert flagged, [(link.key, link.gap) for link in result.conversions.links]
     for link in flagged:
         assert f"({link.formula}) would mislead here" in text.replace("\\", "")
+
+
+def test_the_screen_command_takes_margins(run_cli, tmp_path):
+    path = tmp_path / "two.csv"
+    TWO.assign(z=np.round(RNG.normal(0, 1, 85), 2)).to_csv(path, index=False)
+    res = run_cli("screen", path, "--group", "g", "--boot", "200", "--quiet", "--out",
+                  tmp_path / "out", "--margin", "prob_superiority=0.08", "--margin",
+                  "hedges_g=0.3", "--margin", "d_unpooled=0.3", "--margin", "cohen_d=0.3")
+    assert res.code == 0, res.err
+    rows = json.loads((tmp_path / "out" / "screen.json").read_text())["rows"]
+    assert rows and all(r["size_verdict"] for r in rows if r["status"] == "audited")
+    bad = run_cli("screen", path, "--group", "g", "--quiet", "--out", tmp_path / "o2",
+                  "--margin", "cohens_d=0.3")
+    assert bad.code == 1 and bad.err.startswith("auditor: error: --margin cohens_d: not an index")
