@@ -29,10 +29,9 @@ PROCEDURES = {
         "hedges_g": lambda s, m, a: eq.hedges_g_tost(s[0], s[1], m, a),
         "prob_superiority": lambda s, m, a: eq.prob_superiority_tost(s[0], s[1], m, a),
     },
-    "paired": {
-        "mean_difference": lambda s, m, a, digits=12: eq.paired_mean_difference_tost(
-            s[0], m, a, digits=digits),
-        "d_z": lambda s, m, a, digits=12: eq.d_z_tost(s[0], m, a, digits=digits),
+    "paired": {  # the samples are the audit's rounded differences, used as given
+        "mean_difference": lambda s, m, a: eq.paired_mean_difference_tost(s[0], m, a),
+        "d_z": lambda s, m, a: eq.d_z_tost(s[0], m, a),
     },
 }
 NOT_AVAILABLE = ("no test against a non-zero null is built for this index yet; its interval"
@@ -56,8 +55,7 @@ def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[st
 
 
 def equivalence_records(design: str, samples, margins: Mapping[str, tuple[float, str]],
-                        level: float, justification: str | None,
-                        digits: int = 12) -> dict[str, dict]:
+                        level: float, justification: str | None) -> dict[str, dict]:
     """index -> the JSON record of its equivalence question: the margin used and where it came
     from, the policy's justification, and the two one-sided tests (`equivalence.py`) at
     alpha = 1 - level, or the reason none is available."""
@@ -74,15 +72,12 @@ def equivalence_records(design: str, samples, margins: Mapping[str, tuple[float,
                                 " one half for the two one-sided tests")
         else:
             with np.errstate(all="ignore"):
-                found = (procedure(samples, margin, alpha, digits) if design == "paired"
-                         else procedure(samples, margin, alpha))
+                found = procedure(samples, margin, alpha)
             record.update(found.to_dict())
             record["verdict_text"] = VERDICTS.get(found.verdict) if found.verdict else None
         out[name] = record
     return out
 
-
-FAMILIES = ("mean", "standardized_mean", "dominance", "shift", "variance_explained", "agreement")
 
 
 def parse_margin_options(options) -> dict[str, float]:

@@ -205,6 +205,7 @@ def test_the_quoted_interval_agrees_with_the_reported_test_for_paired_data(frame
 # ------------------------------------------------------------------ the decision's choices
 
 from auditor import rationale  # noqa: E402
+from auditor.coverage_check import verdict  # noqa: E402
 from auditor.policy import default_text, parse_policy  # noqa: E402
 
 
@@ -272,9 +273,11 @@ def test_the_coverage_check_is_reported_and_a_shortfall_reaches_the_reviewer_not
     check = result.coverage_check
     assert check is not None and check.index == result.decision.primary
     assert check.method == result.decision.interval["method"]
-    doc = result.to_dict()
-    assert doc["coverage_check"]["verdict"] in ("holds",) or "falls short" in \
-        doc["coverage_check"]["verdict"]
+    doc = result.to_dict()["coverage_check"]
+    assert doc["usable"] + doc["undefined"] == doc["simulations"] == 200  # the policy's default
+    assert doc["coverage"] == pytest.approx(doc["covered"] / doc["usable"], abs=1e-15)
+    assert (doc["shortfall_points"], doc["verdict"]) == verdict(doc["coverage"], doc["mc_se"],
+                                                                doc["level"])
     short = dataclasses.replace(check, coverage=0.88, verdict="falls short by 7.0 points")
     note = rationale.reviewer_note(dataclasses.replace(result, coverage_check=short),
                                    result.decision, parse_policy(default_text(), "default"))
