@@ -122,7 +122,7 @@ class EquivalenceResult(_Plain):
 # ------------------------------------------------------------------ argument checks
 
 
-def _check_alpha(alpha) -> float:
+def check_alpha(alpha) -> float:
     if isinstance(alpha, bool) or not isinstance(alpha, Real) or not 0.0 < float(alpha) < 0.5:
         raise ValueError(f"alpha={alpha!r}: the level of each one-sided test must be a number"
                          " between 0 and 0.5 (the interval has level 1 - 2 alpha); use, for"
@@ -130,7 +130,7 @@ def _check_alpha(alpha) -> float:
     return float(alpha)
 
 
-def _check_bounds(margin, null: float, floor: float = -math.inf,
+def check_bounds(margin, null: float, floor: float = -math.inf,
                   ceiling: float = math.inf) -> tuple[float, float]:
     """(low, high) from a positive margin m (null - m, null + m) or an explicit pair, checked to
     satisfy floor <= low < null < high <= ceiling."""
@@ -167,7 +167,7 @@ def _check_bounds(margin, null: float, floor: float = -math.inf,
     return low, high
 
 
-def _vector(values, what: str) -> np.ndarray:
+def data_vector(values, what: str) -> np.ndarray:
     arr = np.asarray(values, dtype=float)
     if arr.ndim != 1:
         raise ValueError(f"{what} must be a 1-D array of values, got shape {arr.shape}; pass one"
@@ -175,7 +175,7 @@ def _vector(values, what: str) -> np.ndarray:
     return arr
 
 
-def _paired_differences(x_or_d, digits: int) -> np.ndarray:
+def paired_differences(x_or_d, digits: int) -> np.ndarray:
     """d from an (n, 2) array (first minus second, rounded to `digits` places as
     `paired.differences` does) or a 1-D array of differences taken as given."""
     arr = np.asarray(x_or_d, dtype=float)
@@ -189,7 +189,7 @@ def _paired_differences(x_or_d, digits: int) -> np.ndarray:
                      f" array of differences, got shape {arr.shape}")
 
 
-def _not_finite(*arrays) -> str | None:
+def not_finite(*arrays) -> str | None:
     if any(not np.all(np.isfinite(a)) for a in arrays):
         return "the data contain missing or non-finite values; remove them before testing"
     return None
@@ -208,18 +208,18 @@ def verdict_of(p_tost: float, p_minimal_effect: float, p_difference: float,
     return UNDECIDED
 
 
-def _undefined(index, method, estimate, null, bounds, alpha, reason, notes=()):
+def undefined_result(index, method, estimate, null, bounds, alpha, reason, notes=()):
     est = None if estimate is None or not math.isfinite(estimate) else float(estimate)
     return EquivalenceResult(index, method, est, null, bounds[0], bounds[1], alpha, None, None,
                              None, None, None, None, None, 1.0 - 2.0 * alpha, None, None, None,
                              reason, tuple(notes))
 
 
-def _assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_met, p_diff,
+def assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_met, p_diff,
               interval, statistic, df, notes=()) -> EquivalenceResult:
     ps = (p_lower, p_upper, p_met, p_diff)
     if not all(math.isfinite(p) for p in ps):
-        return _undefined(index, method, estimate, null, bounds, alpha,
+        return undefined_result(index, method, estimate, null, bounds, alpha,
                           "a p-value could not be computed in double precision", notes)
     p_lower, p_upper, p_met, p_diff = (min(1.0, max(0.0, float(p))) for p in ps)
     p_tost = max(p_lower, p_upper)
@@ -230,7 +230,7 @@ def _assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_
                              verdict_of(p_tost, p_met, p_diff, alpha), None, tuple(notes))
 
 
-def _location_t(index, method, estimate, se, df, null, bounds, alpha, notes=(),
+def location_t(index, method, estimate, se, df, null, bounds, alpha, notes=(),
                 clip=None) -> EquivalenceResult:
     """Two one-sided t tests for an estimate with standard error `se` referred to Student's t on
     `df` degrees of freedom:
@@ -252,11 +252,11 @@ def _location_t(index, method, estimate, se, df, null, bounds, alpha, notes=(),
         lo, hi = max(lo, clip[0]), min(hi, clip[1])
         notes = tuple(notes) + (f"interval clipped to the index's range [{clip[0]:g},"
                                 f" {clip[1]:g}]",)
-    return _assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_met,
+    return assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_met,
                      p_diff, (lo, hi), statistic, df, notes)
 
 
-def _noncentral_t(index, estimate, t_obs, df, scale, factor, bounds, alpha) -> EquivalenceResult:
+def noncentral_t_tost(index, estimate, t_obs, df, scale, factor, bounds, alpha) -> EquivalenceResult:
     """Two one-sided tests of a standardized index by the noncentral t.
 
     The statistic t_obs = estimate * scale / factor is noncentral t on `df` degrees of freedom
@@ -284,7 +284,7 @@ def _noncentral_t(index, estimate, t_obs, df, scale, factor, bounds, alpha) -> E
         interval = None
     else:
         interval = (limits[0] / c, limits[1] / c)
-    return _assemble(index, "noncentral_t", estimate, 0.0, bounds, alpha, p_lower, p_upper,
+    return assemble(index, "noncentral_t", estimate, 0.0, bounds, alpha, p_lower, p_upper,
                      p_met, p_diff, interval, t_obs, df, notes)
 
 
@@ -303,12 +303,12 @@ def mean_difference_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult
     variances may differ. The same numbers as statsmodels.stats.weightstats.ttost_ind with
     usevar='unequal'. Undefined with fewer than two values in a group or both groups constant.
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.0)
-    a, b = _vector(a, "group a"), _vector(b, "group b")
-    make = lambda est, reason: _undefined("mean_difference", "welch_t", est, 0.0,  # noqa: E731
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.0)
+    a, b = data_vector(a, "group a"), data_vector(b, "group b")
+    make = lambda est, reason: undefined_result("mean_difference", "welch_t", est, 0.0,  # noqa: E731
                                           bounds, alpha, reason)
-    reason = _not_finite(a, b)
+    reason = not_finite(a, b)
     if reason is None and (a.size < 2 or b.size < 2):
         reason = "too few values: each group needs at least two for its variance"
     if reason:
@@ -321,12 +321,12 @@ def mean_difference_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult
     nu = welch_df(va, a.size, vb, b.size)
     if not (math.isfinite(se) and math.isfinite(nu)):
         return make(diff, "the variances overflow double precision: no standard error")
-    return _location_t("mean_difference", "welch_t", diff, se, nu, 0.0, bounds, alpha)
+    return location_t("mean_difference", "welch_t", diff, se, nu, 0.0, bounds, alpha)
 
 
 def _pooled_d_inputs(a, b, index):
-    a, b = _vector(a, "group a"), _vector(b, "group b")
-    reason = _not_finite(a, b)
+    a, b = data_vector(a, "group a"), data_vector(b, "group b")
+    reason = not_finite(a, b)
     if reason is None and (a.size < 1 or b.size < 1 or a.size + b.size < 3):
         reason = "too few values: each group needs one and the two together at least three"
     if reason is None and index == "hedges_g" and a.size + b.size < 4:
@@ -353,13 +353,13 @@ def cohen_d_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     `parametric.cohen_d`. p_difference is Student's t test. Undefined when both groups are
     constant or fewer than three values are given in all.
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.0)
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.0)
     a, b, d, reason = _pooled_d_inputs(a, b, "cohen_d")
     if reason:
-        return _undefined("cohen_d", "noncentral_t", d, 0.0, bounds, alpha, reason)
+        return undefined_result("cohen_d", "noncentral_t", d, 0.0, bounds, alpha, reason)
     scale = math.sqrt(a.size * b.size / (a.size + b.size))
-    return _noncentral_t("cohen_d", d, d * scale, a.size + b.size - 2, scale, 1.0, bounds, alpha)
+    return noncentral_t_tost("cohen_d", d, d * scale, a.size + b.size - 2, scale, 1.0, bounds, alpha)
 
 
 def hedges_g_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
@@ -371,21 +371,21 @@ def hedges_g_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     and the 1 - 2 alpha interval is J times d's noncentral-t interval, as `parametric.hedges_g`
     reports it, so that the test agrees with g's interval. Same assumptions as `cohen_d_tost`.
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.0)
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.0)
     a, b, d, reason = _pooled_d_inputs(a, b, "hedges_g")
     j = hedges_correction(a.size + b.size - 2) if d is not None else math.nan
     if reason:
-        return _undefined("hedges_g", "noncentral_t", None if d is None else j * d, 0.0, bounds,
+        return undefined_result("hedges_g", "noncentral_t", None if d is None else j * d, 0.0, bounds,
                           alpha, reason)
     scale = math.sqrt(a.size * b.size / (a.size + b.size))
-    res = _noncentral_t("hedges_g", j * d, d * scale, a.size + b.size - 2, scale, j, bounds,
+    res = noncentral_t_tost("hedges_g", j * d, d * scale, a.size + b.size - 2, scale, j, bounds,
                         alpha)
-    return _with_note(res, f"exact small-sample factor J = {j:.6f}; bounds divided by J for"
+    return with_note(res, f"exact small-sample factor J = {j:.6f}; bounds divided by J for"
                            " the noncentrality")
 
 
-def _with_note(res: EquivalenceResult, note: str) -> EquivalenceResult:
+def with_note(res: EquivalenceResult, note: str) -> EquivalenceResult:
     return replace(res, notes=res.notes + (note,))
 
 
@@ -406,12 +406,12 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
     fewer than two values or the variance estimate is zero (complete separation, or placements
     constant in both groups).
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.5, 0.0, 1.0)
-    a, b = _vector(a, "group a"), _vector(b, "group b")
-    make = lambda est, reason: _undefined("prob_superiority", "brunner_munzel_t",  # noqa: E731
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.5, 0.0, 1.0)
+    a, b = data_vector(a, "group a"), data_vector(b, "group b")
+    make = lambda est, reason: undefined_result("prob_superiority", "brunner_munzel_t",  # noqa: E731
                                           est, 0.5, bounds, alpha, reason)
-    reason = _not_finite(a, b)
+    reason = not_finite(a, b)
     if reason is None and (a.size < 2 or b.size < 2):
         reason = "too few values: each group needs at least two"
     if reason:
@@ -422,7 +422,7 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
         why = ("the groups do not overlap (complete separation)" if a_hat in (0.0, 1.0)
                else "the placements do not vary within either group")
         return make(a_hat, f"{why}: the Brunner-Munzel variance is zero")
-    return _location_t("prob_superiority", "brunner_munzel_t", a_hat, math.sqrt(var), df, 0.5,
+    return location_t("prob_superiority", "brunner_munzel_t", a_hat, math.sqrt(var), df, 0.5,
                        bounds, alpha, clip=(0.0, 1.0))
 
 
@@ -441,12 +441,12 @@ def paired_mean_difference_tost(x_or_d, margin, alpha: float = 0.05, *,
     statsmodels.stats.weightstats.ttost_paired. Undefined with fewer than two pairs or when
     every difference is equal.
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.0)
-    d = _paired_differences(x_or_d, digits)
-    make = lambda est, reason: _undefined("mean_difference", "paired_t", est, 0.0,  # noqa: E731
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.0)
+    d = paired_differences(x_or_d, digits)
+    make = lambda est, reason: undefined_result("mean_difference", "paired_t", est, 0.0,  # noqa: E731
                                           bounds, alpha, reason)
-    reason = _not_finite(d)
+    reason = not_finite(d)
     if reason is None and d.size < 2:
         reason = "too few pairs: at least two are needed"
     if reason:
@@ -458,7 +458,7 @@ def paired_mean_difference_tost(x_or_d, margin, alpha: float = 0.05, *,
     se = math.sqrt(v / n)
     if not math.isfinite(se):
         return make(m, "the variance overflows double precision: no standard error")
-    return _location_t("mean_difference", "paired_t", m, se, n - 1, 0.0, bounds, alpha)
+    return location_t("mean_difference", "paired_t", m, se, n - 1, 0.0, bounds, alpha)
 
 
 def d_z_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> EquivalenceResult:
@@ -472,12 +472,12 @@ def d_z_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> Equiva
     `paired_mean_difference_tost`. Undefined with fewer than two pairs or when every difference
     is equal.
     """
-    alpha = _check_alpha(alpha)
-    bounds = _check_bounds(margin, 0.0)
-    d = _paired_differences(x_or_d, digits)
-    make = lambda reason: _undefined("d_z", "noncentral_t", None, 0.0, bounds,  # noqa: E731
+    alpha = check_alpha(alpha)
+    bounds = check_bounds(margin, 0.0)
+    d = paired_differences(x_or_d, digits)
+    make = lambda reason: undefined_result("d_z", "noncentral_t", None, 0.0, bounds,  # noqa: E731
                                      alpha, reason)
-    reason = _not_finite(d)
+    reason = not_finite(d)
     if reason is None and d.size < 2:
         reason = "too few pairs: at least two are needed"
     if reason:
@@ -488,4 +488,4 @@ def d_z_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> Equiva
     if not math.isfinite(value):
         return make("every difference is equal: the SD of the differences is zero")
     scale = math.sqrt(n)
-    return _noncentral_t("d_z", value, value * scale, n - 1, scale, 1.0, bounds, alpha)
+    return noncentral_t_tost("d_z", value, value * scale, n - 1, scale, 1.0, bounds, alpha)
