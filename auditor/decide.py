@@ -166,6 +166,7 @@ def _check_outliers(result: AuditResult, outliers, design: str, policy: Policy) 
     else:
         candidates = [r for r in rows if r in position]
     scale = _standard_error(result.effect(index), summary)
+    defined = result.effect(index).estimate is not None
     fired, largest = False, None
     for r in candidates:
         change = float(infl.changes[index][position[r]])
@@ -173,7 +174,11 @@ def _check_outliers(result: AuditResult, outliers, design: str, policy: Policy) 
         largest = size if largest is None or (size is not None and size > largest) else largest
         moved = size is not None and size >= p["influence_in_se"]
         flipped = p["any_sign_or_interval_flip"] and r in flips
-        if moved or flipped:
+        if defined and not math.isfinite(change):  # the index exists only with this case
+            fired = True
+            evidence.append(Evidence(f"line {r}", f"{index} undefined without this case", 1.0,
+                                     ">=", 1.0, True))
+        elif moved or flipped:
             fired = True
             evidence.append(Evidence(f"line {r}", f"change of {index} in standard errors", size,
                                      ">=", p["influence_in_se"], moved))

@@ -8,6 +8,9 @@ changes the conventional magnitude label; and two fragility counts found greedil
 Jackknife SE and bias are stratified (Efron & Tibshirani 1993, sec. 11.2 and 10.5, summed over
 the strata, as the BCa acceleration is): SE^2 = sum_j (n_j - 1)/n_j sum_i (theta_(ji) - mean_j)^2,
 bias = sum_j (n_j - 1)(mean_j - theta-hat).
+A unit without which the effect is undefined (every other value of its group equal, say) is left
+out of the SE and the largest change, which only finite changes have, but is the most
+influential unit (the earliest such line when there are several): the effect exists only with it.
 
 Intervals after removal: for an effect whose interval is analytic, the interval is recomputed
 exactly on the reduced data. For an effect whose interval is the bootstrap's, the bootstrap is not
@@ -251,6 +254,8 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     max_change = float(np.max(np.abs(all_changes[finite]))) if finite.any() else None
     top_row = (int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))])
                if max_change else None)  # no case moves the estimate: none is most influential
+    if not finite.all():  # a case without which the index is undefined decides it outright
+        top_row = int(np.min(all_rows[~finite]))
 
     side = _side(theta, null)
     values = np.concatenate(loo)

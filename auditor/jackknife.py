@@ -24,10 +24,28 @@ from auditor.ranks import mann_whitney_variance
 
 
 def _moments(x: np.ndarray):
-    """(mean, deviations from it, M2 = sum of squared deviations) by two passes."""
+    """(mean, deviations from it, M2 = sum of squared deviations) by two passes; exactly
+    (value, zeros, 0) for a constant sample, whose mean by summation can miss the value by a
+    rounding error and so give a variance that is not zero."""
+    if x.size and x.min() == x.max():
+        return float(x[0]), np.zeros_like(x, dtype=float), 0.0
     m = float(np.mean(x)) if x.size else np.nan
     c = x - m
     return m, c, float(np.dot(c, c))
+
+
+def _rest_constant(x: np.ndarray):
+    """(i, value) when every value of x but x_i equals `value` and x_i differs, else None: the
+    one removal that leaves a constant sample, whose reverse update would leave a rounding
+    residue (a variance of 1e-30 instead of 0) where a refit gives exactly zero."""
+    if x.size < 3:
+        return None
+    lo, hi = x.min(), x.max()
+    for common, odd in ((lo, hi), (hi, lo)):
+        at_odd = np.flatnonzero(x == odd)
+        if at_odd.size == 1 and np.count_nonzero(x == common) == x.size - 1:
+            return int(at_odd[0]), float(common)
+    return None
 
 
 def _drop_moments(x: np.ndarray):
@@ -39,6 +57,12 @@ def _drop_moments(x: np.ndarray):
     m, c, m2 = _moments(x)
     m_new = m - c / (n - 1)
     m2_new = np.maximum(m2 - c * c * (n / (n - 1)), 0.0)
+    if m2 == 0.0:
+        m_new, m2_new = np.full(n, m), np.zeros(n)
+    else:
+        rest = _rest_constant(x)
+        if rest is not None:
+            m_new[rest[0]], m2_new[rest[0]] = rest[1], 0.0
     return m_new, m2_new, n - 1
 
 

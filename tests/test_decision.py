@@ -284,3 +284,16 @@ def test_every_number_in_the_texts_is_a_json_value(case):
         cleaned = re.sub(r"SHA-256 [0-9a-f]+|[A-Za-z_]+\d+|\d+(st|nd|rd|th)\b", " ", text)
         for token in re.findall(r"(?<![\w.])-?\d+(?:\.\d+)*%?", cleaned):
             assert token in known or token.lstrip("-") in known, (field, token, text)
+
+
+def test_a_case_without_which_cohen_d_is_undefined_is_the_decisive_one():
+    # every value 10 but one 1000: without that case both groups are constant and d has no
+    # value at all, so the case is the most influential one and the outlier check names it alone
+    r = run(two(np.r_[np.full(24, 10.0), 1000.0], np.full(25, 10.0)))
+    far = 2 + 24  # file line of the 25th treated row (line 1 is the header)
+    d = next(e for e in r.influence.effects if e.effect == "cohen_d")
+    assert d.most_influential_row == far, d
+    outliers = next(x for x in r.decision.reasons if x.rule == "outliers")
+    assert outliers.fired, outliers
+    named = {e.subject for e in outliers.evidence if e.subject.startswith("line ")}
+    assert named == {f"line {far}"}, outliers.evidence

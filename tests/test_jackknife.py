@@ -26,6 +26,12 @@ def _two_group_cases():
     yield "decimals", np.round(rng.normal(0.3, 1, 41), 1), np.round(rng.normal(0, 1, 37), 1)
     yield "two_each", np.array([1.0, 2.0]), np.array([3.0, 5.0])
     yield "skewed_unequal", rng.lognormal(0, 1, 60), rng.lognormal(0.2, 0.5, 9)
+    # every value equal but one far one: without it both groups are constant and the d family
+    # is undefined by refit; the reverse update must not leave a rounding residue (a finite or
+    # infinite d) there, and a constant 0.1 has a mean by summation that misses 0.1
+    yield "one_far_value", np.r_[np.full(4999, 10.0), 1000.0], np.full(5000, 10.0)
+    yield "one_far_low_value", np.r_[-250.0, np.full(40, 0.1)], np.full(31, 0.1)
+    yield "constant_group", rng.normal(0.1, 1.0, 25), np.full(33, 0.1)
 
 
 @pytest.mark.parametrize("case,a,b", list(_two_group_cases()), ids=lambda v: v if isinstance(v, str) else "")

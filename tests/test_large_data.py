@@ -644,19 +644,8 @@ def _screen_audit(path: Path, combo: Combo):
                      resamples=combo.boot, scope="screen")
 
 
-# Known gaps (strict xfail: fixing one turns its test red until the entry is removed). With every
-# value equal but one, removing the far case leaves an index undefined (or, by rounding in the
-# leave-one-out update, infinite), and influence drops non-finite leave-one-out values, so the one
-# decisive case vanishes from the jackknife SE, the largest change and the outlier check.
+# Known gaps (strict xfail: fixing one turns its test red until the entry is removed).
 KNOWN_GAPS = {
-    "two-constant_outlier-4000": "Cohen's d without the far case is -inf by rounding in the"
-    " leave-one-out update (undefined by refit); influence drops it and names line 2",
-    # the same gap at 5,000 (seen failing on a fresh machine with the newest numpy, at the
-    # commit that added this catalogue too): rounding leaves a finite, near-zero change there
-    "two-constant_outlier-5000": "Cohen's d without the far case is undefined by refit but"
-    " finite by rounding in the leave-one-out update; influence names line 2, not the far case",
-    "k-constant_outlier-5000": "the omnibus effects are undefined without the far case;"
-    " influence drops the non-finite value, so the outlier check does not fire",
     "k_rep-constant_outlier-5000": "the outlier check judges every participant, not only those"
     " with an extreme cell, and names 4,999 ordinary ones instead of the far one",
 }
