@@ -19,19 +19,33 @@ from collections.abc import Mapping
 import numpy as np
 
 from auditor import equivalence as eq
+from auditor import equivalence_omnibus as omnibus
 from auditor.equivalence import VERDICTS
 
-# design -> index -> the two-one-sided-tests function, called on the design's samples
+# design -> index -> the two-one-sided-tests function, called as f(samples, margin, alpha, reference)
+# on the design's samples (`reference`: the position of the group whose SD scales Glass's delta)
 PROCEDURES = {
     "two_independent": {
-        "mean_difference": lambda s, m, a: eq.mean_difference_tost(s[0], s[1], m, a),
-        "cohen_d": lambda s, m, a: eq.cohen_d_tost(s[0], s[1], m, a),
-        "hedges_g": lambda s, m, a: eq.hedges_g_tost(s[0], s[1], m, a),
-        "prob_superiority": lambda s, m, a: eq.prob_superiority_tost(s[0], s[1], m, a),
+        "mean_difference": lambda s, m, a, r: eq.mean_difference_tost(s[0], s[1], m, a),
+        "cohen_d": lambda s, m, a, r: eq.cohen_d_tost(s[0], s[1], m, a),
+        "hedges_g": lambda s, m, a, r: eq.hedges_g_tost(s[0], s[1], m, a),
+        "glass_delta": lambda s, m, a, r: eq.glass_delta_tost(s[0], s[1], m, a, reference=r),
+        "d_unpooled": lambda s, m, a, r: eq.d_unpooled_tost(s[0], s[1], m, a),
+        "prob_superiority": lambda s, m, a, r: eq.prob_superiority_tost(s[0], s[1], m, a),
+        "cliff_delta": lambda s, m, a, r: eq.cliff_delta_tost(s[0], s[1], m, a),
+        "rank_biserial": lambda s, m, a, r: eq.rank_biserial_tost(s[0], s[1], m, a),
     },
     "paired": {  # the samples are the audit's rounded differences, used as given
-        "mean_difference": lambda s, m, a: eq.paired_mean_difference_tost(s[0], m, a),
-        "d_z": lambda s, m, a: eq.d_z_tost(s[0], m, a),
+        "mean_difference": lambda s, m, a, r: eq.paired_mean_difference_tost(s[0], m, a),
+        "d_z": lambda s, m, a, r: eq.d_z_tost(s[0], m, a),
+    },
+    "k_independent": {  # one-sided: the index's smallest value is its no-effect value 0
+        "eta_squared": lambda s, m, a, r: omnibus.eta_squared_tost(s, m, a),
+        "omega_squared": lambda s, m, a, r: omnibus.omega_squared_tost(s, m, a),
+        "epsilon_squared_h": lambda s, m, a, r: omnibus.epsilon_squared_h_tost(s, m, a),
+    },
+    "k_repeated": {
+        "kendall_w": lambda s, m, a, r: omnibus.kendall_w_tost(np.column_stack(s), m, a),
     },
 }
 NOT_AVAILABLE = ("no test against a non-zero null is built for this index yet; its interval"
@@ -55,7 +69,8 @@ def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[st
 
 
 def equivalence_records(design: str, samples, margins: Mapping[str, tuple[float, str]],
-                        level: float, justification: str | None) -> dict[str, dict]:
+                        level: float, justification: str | None,
+                        reference: int = 1) -> dict[str, dict]:
     """index -> the JSON record of its equivalence question: the margin used and where it came
     from, the policy's justification, and the two one-sided tests (`equivalence.py`) at
     alpha = 1 - level, or the reason none is available."""
@@ -72,7 +87,12 @@ def equivalence_records(design: str, samples, margins: Mapping[str, tuple[float,
                                 " one half for the two one-sided tests")
         else:
             with np.errstate(all="ignore"):
-                found = procedure(samples, margin, alpha)
+                try:
+                    found = procedure(samples, margin, alpha, reference)
+                except ValueError as err:  # a margin outside the index's range, say
+                    record["reason"] = f"margin {margin:g} for {name}: {err}"
+                    out[name] = record
+                    continue
             record.update(found.to_dict())
             record["verdict_text"] = VERDICTS.get(found.verdict) if found.verdict else None
         out[name] = record

@@ -23,7 +23,7 @@ from auditor.influence import Units, influence_table, with_fragility
 from auditor.load import Table, column_position, read_table
 from auditor.margins import equivalence_records, margins_for
 from auditor.parametric import Estimate
-from auditor.policy import Policy, load_policy
+from auditor.policy import INDICES, Policy, load_policy
 from auditor.rationale import CAUTION
 from auditor.resampling import bca_interval, leave_one_out_units, resample_units
 from auditor.results import (AuditResult, Diagnostics, Effect, PairComparison, Samples,
@@ -131,12 +131,15 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                 else bool(coverage_check)) and scope == "full"
     if wide is not None:
         design = wide_repeated(table, list(wide), subject)
+        check_margin_names(margins, design)
         result = _audit_repeated(design, outcome or design.outcome, **settings)
     elif subject is not None:
-        result = _audit_repeated(long_repeated(table, outcome, group, subject, chosen), outcome,
-                                 **settings)
+        design = long_repeated(table, outcome, group, subject, chosen)
+        check_margin_names(margins, design)
+        result = _audit_repeated(design, outcome, **settings)
     else:
         design = independent_groups(table, outcome, group, chosen)
+        check_margin_names(margins, design)
         if len(design.labels) == 2:
             result = _audit_two_groups(design, reference, **settings)
         elif reference is not None:
@@ -147,6 +150,23 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     if result.design == "two_independent":
         result = dataclasses.replace(result, conversions=scale_conversions(result))
     return with_coverage_check(result, policy) if coverage else result
+
+
+def check_margin_names(given, design: Groups | Repeated) -> None:
+    """A DesignError, before any statistic is computed, when a command-line margin names an
+    index the design does not report (a paired index in a two-group file, say)."""
+    if not given:
+        return
+    k = len(design.labels)
+    key = (("two_groups" if k == 2 else "k_groups") if isinstance(design, Groups)
+           else ("paired" if k == 2 else "k_repeated"))
+    names = INDICES[key]
+    unknown = sorted(set(given) - set(names))
+    if unknown:
+        what = {"two_groups": "two independent groups", "k_groups": f"{k} independent groups",
+                "paired": "two paired conditions", "k_repeated": f"{k} repeated conditions"}
+        raise DesignError(f"--margin {unknown[0]}: not an index of {what[key]}; use one of"
+                          f" {', '.join(names)}")
 
 
 def with_equivalence(result: AuditResult, policy: Policy,
@@ -167,8 +187,10 @@ def with_equivalence(result: AuditResult, policy: Policy,
         samples = (result.samples.differences,)
     else:
         samples = tuple(result.samples.values)
+    reference = (result.samples.labels.index(result.settings.reference)
+                 if result.settings.reference in result.samples.labels else 1)
     records = equivalence_records(result.design, samples, chosen, result.settings.level,
-                                  policy.settings["margins"].get("justification"))
+                                  policy.settings["margins"].get("justification"), reference)
     result = dataclasses.replace(result, equivalence=records)
     if result.decision is None or result.settings.scope == "screen":
         return result

@@ -213,7 +213,9 @@ def size_text(result, name: str, decimals: int = 2) -> str:
     if record.get("reason") or record.get("verdict") is None:
         return f"{head}: no verdict ({record.get('reason', 'the tests are undefined here')})."
     level = f"{record['interval_level'] * 100:g}%"
-    return (f"{head}: {record['verdict_text']} (two one-sided tests p"
+    tests = ("two one-sided tests" if record.get("p_lower") is not None
+             else "one-sided test below the margin")  # an omnibus index: 0 is its floor
+    return (f"{head}: {record['verdict_text']} ({tests} p"
             f" {_p_text(record['p_tost'], decimals)}, test of no effect p"
             f" {_p_text(record['p_difference'], decimals)}; {level} interval"
             f" {fmt(record['interval_low'], decimals)} to {fmt(record['interval_high'], decimals)}"

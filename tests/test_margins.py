@@ -27,6 +27,12 @@ B = np.round(RNG.normal(10.0, 2, 45), 2)
 TWO = pd.DataFrame({"y": np.r_[A, B], "g": ["a"] * 40 + ["b"] * 45})
 BEFORE = np.round(RNG.normal(30, 4, 25), 1)
 PAIRS = pd.DataFrame({"pre": BEFORE, "post": np.round(BEFORE - RNG.normal(0.2, 1, 25), 1)})
+THREE = pd.DataFrame({"y": np.round(np.r_[RNG.normal(5, 1, 20), RNG.normal(5.3, 1, 22),
+                                            RNG.normal(5.8, 1.2, 18)], 1),
+                      "g": ["a"] * 20 + ["b"] * 22 + ["c"] * 18})
+_T1 = np.round(RNG.normal(20, 3, 24), 1)
+REPEATED = pd.DataFrame({"t1": _T1, "t2": np.round(_T1 + RNG.normal(0.4, 1, 24), 1),
+                         "t3": np.round(_T1 + RNG.normal(0.9, 1, 24), 1)})
 
 
 def run(frame, **kw):
@@ -70,7 +76,8 @@ def test_policy_margins_by_index_and_by_family_with_the_justification_quoted():
     assert eqv["cohen_d"]["margin"] == 0.25 and "family" in eqv["cohen_d"]["margin_from"]
     assert eqv["hedges_g"]["margin"] == 0.4 and eqv["hedges_g"]["margin_from"] == "command line"
     assert eqv["prob_superiority"]["margin_from"] == "policy"
-    assert eqv["glass_delta"]["reason"] == NOT_AVAILABLE  # a family margin, no procedure yet
+    assert eqv["glass_delta"]["margin"] == 0.25 and eqv["glass_delta"]["verdict"] is not None
+    assert eqv["robust_d"]["reason"] == NOT_AVAILABLE  # a family margin, no procedure yet
     primary = result.decision.primary
     if primary in eqv and eqv[primary].get("verdict"):
         assert "Smallest effect of interest" in result.decision.rationale
@@ -86,9 +93,60 @@ def test_paired_margins_use_the_rounded_differences():
     assert result.equivalence["ps_dep"]["reason"] == NOT_AVAILABLE
 
 
-def test_a_margin_for_an_index_the_design_does_not_have_is_refused():
-    with pytest.raises(DesignError, match="--margin d_z: not an index of this design"):
+def test_a_margin_for_an_index_the_design_does_not_have_is_refused_before_any_statistic(
+        monkeypatch):
+    import auditor.pipeline as pipeline
+
+    def never(*args, **kwargs):
+        raise AssertionError("the audit ran before the margin's index was checked")
+
+    monkeypatch.setattr(pipeline, "_audit_two_groups", never)
+    monkeypatch.setattr(pipeline, "_audit_repeated", never)
+    monkeypatch.setattr(pipeline, "_audit_k_groups", never)
+    with pytest.raises(DesignError, match="--margin d_z: not an index of two independent groups"):
         run(TWO, outcome="y", group="g", margins={"d_z": 0.3})
+    with pytest.raises(DesignError, match="--margin cohen_d: not an index of two paired"):
+        run(PAIRS, paired_columns=["pre", "post"], margins={"cohen_d": 0.3})
+    with pytest.raises(DesignError, match="--margin kendall_w: not an index of 3 independent"):
+        run(THREE, outcome="y", group="g", margins={"kendall_w": 0.1})
+    with pytest.raises(DesignError, match="--margin eta_squared: not an index of 3 repeated"):
+        run(REPEATED, paired_columns=["t1", "t2", "t3"], margins={"eta_squared": 0.1})
+
+
+def test_glass_delta_s_margin_follows_the_reference_group():
+    for reference, position in ((None, 1), ("b", 1), ("a", 0)):
+        result = run(TWO, outcome="y", group="g", reference=reference,
+                     margins={"glass_delta": 0.4})
+        ref = eq.glass_delta_tost(A, B, 0.4, 0.05, reference=position)
+        record = result.equivalence["glass_delta"]
+        effect = result.effect("glass_delta")
+        assert record["p_tost"] == pytest.approx(ref.p_tost, rel=1e-12), reference
+        assert record["estimate"] == pytest.approx(effect.estimate, rel=1e-12), reference
+
+
+def test_k_group_and_repeated_margins_give_the_one_sided_omnibus_tests():
+    from auditor import equivalence_omnibus as omnibus
+
+    result = run(THREE, outcome="y", group="g",
+                 margins={"eta_squared": 0.1, "epsilon_squared_h": 0.1, "omega_squared": 0.1})
+    groups = [THREE.y[THREE.g == g].to_numpy() for g in ("a", "b", "c")]
+    for name, fn in (("eta_squared", omnibus.eta_squared_tost),
+                     ("epsilon_squared_h", omnibus.epsilon_squared_h_tost),
+                     ("omega_squared", omnibus.omega_squared_tost)):
+        record, ref = result.equivalence[name], fn(groups, 0.1, 0.05)
+        assert record["verdict"] == ref.verdict and record["p_lower"] is None, name
+        assert record["p_upper"] == pytest.approx(ref.p_upper, rel=1e-12), name
+        assert record["estimate"] == pytest.approx(result.effect(name).estimate, rel=1e-12)
+    assert result.equivalence["eta_squared"]["margin_low"] == 0.0
+    rep = run(REPEATED, paired_columns=["t1", "t2", "t3"], margins={"kendall_w": 0.2})
+    ref = omnibus.kendall_w_tost(REPEATED[["t1", "t2", "t3"]].to_numpy(), 0.2, 0.05)
+    assert rep.equivalence["kendall_w"]["p_upper"] == pytest.approx(ref.p_upper, rel=1e-12)
+
+
+def test_a_margin_outside_an_index_s_range_is_explained_not_raised():
+    result = run(THREE, outcome="y", group="g", margins={"eta_squared": 1.5})
+    assert "eta_squared" in result.equivalence["eta_squared"]["reason"]
+    assert result.equivalence["eta_squared"].get("verdict") is None
 
 
 @pytest.mark.parametrize("option", ["cohen_d", "cohen_d=", "=0.3", "cohen_d=-1", "cohen_d=x",
@@ -183,3 +241,13 @@ def test_the_screen_command_takes_margins(run_cli, tmp_path):
     bad = run_cli("screen", path, "--group", "g", "--quiet", "--out", tmp_path / "o2",
                   "--margin", "cohens_d=0.3")
     assert bad.code == 1 and bad.err.startswith("auditor: error: --margin cohens_d: not an index")
+
+
+def test_the_texts_call_an_omnibus_index_s_test_one_sided():
+    from auditor.rationale import size_text
+
+    result = run(THREE, outcome="y", group="g", margins={"eta_squared": 0.2})
+    text = size_text(result, "eta_squared")
+    assert "one-sided test below the margin p" in text and "two one-sided" not in text, text
+    two = run(TWO, outcome="y", group="g", margins={"cohen_d": 0.3})
+    assert "two one-sided tests p" in size_text(two, "cohen_d")

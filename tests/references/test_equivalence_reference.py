@@ -393,6 +393,82 @@ def test_verdict_of_is_a_partition():
                     assert got == eq.UNDECIDED
 
 
+# ================================================================ Cliff's delta, d unpooled, Glass
+
+
+DELTA_MARGINS = (0.1, 0.3, 0.6, (-0.2, 0.5))
+
+
+@pytest.mark.parametrize("margin", DELTA_MARGINS)
+@pytest.mark.parametrize("name,a,b", RANKED, ids=[c[0] for c in RANKED])
+@pytest.mark.parametrize("index", ["cliff_delta", "rank_biserial"])
+def test_cliff_delta_tost_is_statsmodels_a_test_on_the_mapped_bounds(index, name, a, b, margin):
+    """delta = 2A - 1: statsmodels' Brunner-Munzel tests of prob1 at ((1 + low)/2, (1 + high)/2),
+    and its interval carried by 2x - 1."""
+    fn = eq.cliff_delta_tost if index == "cliff_delta" else eq.rank_biserial_tost
+    res = fn(a, b, margin, ALPHA)
+    low, high = _bounds(margin, 0.0)
+    assert (res.margin_low, res.margin_high, res.null_value) == (low, high, 0.0)
+    rc = rank_compare_2indep(a, b)
+    a_low, a_high = (1 + low) / 2, (1 + high) / 2
+    larger = rc.test_prob_superior(value=a_low, alternative="larger")
+    smaller = rc.test_prob_superior(value=a_high, alternative="smaller")
+    assert res.p_lower == pytest.approx(larger.pvalue, **CLOSE)
+    assert res.p_upper == pytest.approx(smaller.pvalue, **CLOSE)
+    assert res.p_tost == pytest.approx(rc.tost_prob_superior(a_low, a_high).pvalue, **CLOSE)
+    assert res.p_difference == pytest.approx(rc.pvalue, **CLOSE)
+    assert res.estimate == pytest.approx(2 * rc.prob1 - 1, **CLOSE)
+    lo, hi = rc.conf_int(alpha=2 * ALPHA)
+    assert res.interval_low == pytest.approx(2 * max(lo, 0.0) - 1, **CLOSE)
+    assert res.interval_high == pytest.approx(2 * min(hi, 1.0) - 1, **CLOSE)
+
+
+@pytest.mark.parametrize("margin", (0.2, 0.5, 1.2, (-0.4, 0.9)))
+@pytest.mark.parametrize("name,a,b", BODY_MASS, ids=[c[0] for c in BODY_MASS])
+def test_d_unpooled_tost_by_the_noncentral_t_with_welch_df(name, a, b, margin):
+    """Welch's t is noncentral t on Welch's df with ncp = delta / c, c = se / s (scipy.stats.nct,
+    scipy's Welch test for the p of no effect)."""
+    res = eq.d_unpooled_tost(a, b, margin, ALPHA)
+    va, vb = np.var(a, ddof=1), np.var(b, ddof=1)
+    se = math.sqrt(va / a.size + vb / b.size)
+    s = math.sqrt((va + vb) / 2)
+    nu = (va / a.size + vb / b.size) ** 2 / (
+        (va / a.size) ** 2 / (a.size - 1) + (vb / b.size) ** 2 / (b.size - 1))
+    t = (a.mean() - b.mean()) / se
+    c = se / s
+    low, high = _bounds(margin, 0.0)
+    assert res.estimate == pytest.approx((a.mean() - b.mean()) / s, rel=1e-12)
+    assert res.p_lower == pytest.approx(_nct_upper(t, nu, low / c), **NCT_CLOSE)
+    assert res.p_upper == pytest.approx(_nct_lower(t, nu, high / c), **NCT_CLOSE)
+    welch = stats.ttest_ind(a, b, equal_var=False)
+    assert res.p_difference == pytest.approx(welch.pvalue, **CLOSE)
+    assert res.df == pytest.approx(nu, rel=1e-12)
+    # the interval: where each one-sided p equals alpha
+    assert _nct_upper(t, nu, res.interval_low / c) == pytest.approx(ALPHA, abs=1e-8)
+    assert _nct_lower(t, nu, res.interval_high / c) == pytest.approx(ALPHA, abs=1e-8)
+
+
+@pytest.mark.parametrize("margin", (0.2, 0.5, 1.2, (-0.4, 0.9)))
+@pytest.mark.parametrize("name,a,b", BODY_MASS, ids=[c[0] for c in BODY_MASS])
+@pytest.mark.parametrize("reference", [0, 1])
+def test_glass_delta_tost_by_normal_theory(reference, name, a, b, margin):
+    """Wald tests with Glass's delta's large-sample SE (Hedges & Olkin 1985, p. 79, with the
+    other group's own variance), written out here with scipy.stats.norm."""
+    res = eq.glass_delta_tost(a, b, margin, ALPHA, reference=reference)
+    ref, other = (b, a) if reference == 1 else (a, b)
+    delta = (a.mean() - b.mean()) / np.std(ref, ddof=1)
+    se = math.sqrt(np.var(other, ddof=1) / np.var(ref, ddof=1) / other.size + 1 / ref.size
+                   + delta**2 / (2 * (ref.size - 1)))
+    low, high = _bounds(margin, 0.0)
+    assert res.estimate == pytest.approx(delta, rel=1e-12)
+    assert res.p_lower == pytest.approx(stats.norm.sf((delta - low) / se), **CLOSE)
+    assert res.p_upper == pytest.approx(stats.norm.cdf((delta - high) / se), **CLOSE)
+    assert res.p_difference == pytest.approx(2 * stats.norm.sf(abs(delta) / se), **CLOSE)
+    z = stats.norm.ppf(1 - ALPHA)
+    assert res.interval_low == pytest.approx(delta - z * se, **CLOSE)
+    assert res.interval_high == pytest.approx(delta + z * se, **CLOSE)
+
+
 # ================================================================ properties
 
 
@@ -412,7 +488,11 @@ def two_groups(draw, min_size=3, max_size=25):
 MARGINS = st.floats(0.05, 5.0)
 A_MARGIN = st.floats(0.02, 0.45)
 FUNCTIONS = {"mean_difference": eq.mean_difference_tost, "cohen_d": eq.cohen_d_tost,
-             "hedges_g": eq.hedges_g_tost, "prob_superiority": eq.prob_superiority_tost}
+             "hedges_g": eq.hedges_g_tost, "prob_superiority": eq.prob_superiority_tost,
+             "cliff_delta": eq.cliff_delta_tost, "d_unpooled": eq.d_unpooled_tost}
+# Glass's delta is scaled by the second group's SD: swapping the groups changes the index
+UNSWAPPABLE = {"glass_delta": eq.glass_delta_tost}
+RANGE = {"prob_superiority": (0.0, 1.0), "cliff_delta": (-1.0, 1.0)}
 P_FIELDS = ("p_lower", "p_upper", "p_tost", "p_minimal_effect")
 
 
@@ -423,7 +503,8 @@ def _clear_of_alpha(res, gap=1e-9) -> bool:
 
 
 def _margin_for(index, draw_margin, draw_a_margin):
-    return draw_a_margin if index == "prob_superiority" else draw_margin
+    return {"prob_superiority": draw_a_margin, "cliff_delta": 2 * draw_a_margin}.get(
+        index, draw_margin)
 
 
 @STEADY
@@ -437,8 +518,8 @@ def test_swapping_the_groups_mirrors_the_tests(index, data, m, ma, skew):
     margin = _margin_for(index, m, ma)
     # asymmetric bounds: (null - skew 2m, null + (1 - skew) 2m), mirrored for the swap
     low, high = null - skew * 2 * margin, null + (1 - skew) * 2 * margin
-    if index == "prob_superiority":
-        low, high = max(low, 0.0), min(high, 1.0)
+    if index in RANGE:
+        low, high = max(low, RANGE[index][0]), min(high, RANGE[index][1])
     ab = fn(a, b, (low, high), ALPHA)
     ba = fn(b, a, (2 * null - high, 2 * null - low), ALPHA)
     assert (ab.reason is None) == (ba.reason is None)
@@ -454,12 +535,12 @@ def test_swapping_the_groups_mirrors_the_tests(index, data, m, ma, skew):
 
 @STEADY
 @given(data=two_groups(), m=MARGINS, ma=A_MARGIN, c=st.sampled_from([1e-3, 0.37, 6.0, 2.5e4]))
-@pytest.mark.parametrize("index", list(FUNCTIONS))
+@pytest.mark.parametrize("index", list(FUNCTIONS) + list(UNSWAPPABLE))
 def test_units_do_not_change_the_standardized_verdicts(index, data, m, ma, c):
     """Multiplying every value by c > 0 leaves d, g and A and their tests unchanged; the raw
     mean difference is unchanged once its margin is multiplied by c too."""
     a, b = data
-    fn = FUNCTIONS[index]
+    fn = {**FUNCTIONS, **UNSWAPPABLE}[index]
     margin = _margin_for(index, m, ma)
     scaled_margin = margin * c if index == "mean_difference" else margin
     one, other = fn(a, b, margin, ALPHA), fn(a * c, b * c, scaled_margin, ALPHA)
@@ -473,12 +554,12 @@ def test_units_do_not_change_the_standardized_verdicts(index, data, m, ma, c):
 
 @STEADY
 @given(data=two_groups(), m=MARGINS, ma=A_MARGIN)
-@pytest.mark.parametrize("index", list(FUNCTIONS))
+@pytest.mark.parametrize("index", list(FUNCTIONS) + list(UNSWAPPABLE))
 def test_the_p_values_agree_with_the_interval(index, data, m, ma):
     """p_tost < alpha iff the 1 - 2 alpha interval lies inside the bounds; p_minimal_effect <
     alpha iff it lies beyond one; the verdict is the interval's reading (`_reading`)."""
     a, b = data
-    res = FUNCTIONS[index](a, b, _margin_for(index, m, ma), ALPHA)
+    res = {**FUNCTIONS, **UNSWAPPABLE}[index](a, b, _margin_for(index, m, ma), ALPHA)
     assume(res.reason is None)
     assert res.interval_low is not None
     assert res.p_tost == max(res.p_lower, res.p_upper)
