@@ -52,10 +52,18 @@ NOT_AVAILABLE = ("no test against a non-zero null is built for this index yet; i
                  " can still be read against the margin")
 
 
+# dominance indices equal to 2P - 1 for a probability P (A or PS_dep): a distance m from 1/2
+# on P's scale is a distance 2m from 0 on theirs
+TWICE_A = frozenset({"cliff_delta", "rank_biserial", "matched_rank_biserial"})
+
+
 def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[str, float],
                 given: Mapping[str, float]) -> dict[str, tuple[float, str]]:
     """index -> (margin, where it came from) for the audit's indices: a command-line margin
-    (`given`) first, then the policy's for the index, then the policy's for its family."""
+    (`given`) first, then the policy's for the index, then the policy's for its family. A
+    `dominance` family margin is a distance from 1/2 on the probability scale of A and PS_dep,
+    so one number asks the same question of every index in the family: the indices equal to
+    2P - 1 (`TWICE_A`) get twice it, on their own scale."""
     out = {}
     for name in effects:
         if name in given:
@@ -63,8 +71,12 @@ def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[st
         elif name in policy_margins:
             out[name] = (float(policy_margins[name]), "policy")
         elif families.get(name) in policy_margins:
-            out[name] = (float(policy_margins[families[name]]),
-                         f"policy (family {families[name]})")
+            m = float(policy_margins[families[name]])
+            if families[name] == "dominance" and name in TWICE_A:
+                out[name] = (2.0 * m, f"policy (family dominance: {m:g} on the probability"
+                             f" scale, {2.0 * m:g} on the scale of {name} = 2P - 1)")
+            else:
+                out[name] = (m, f"policy (family {families[name]})")
     return out
 
 

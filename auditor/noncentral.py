@@ -182,8 +182,9 @@ def noncentral_f_tails(x: float, df1: float, df2: float, ncp: float) -> tuple[fl
     """(P(F <= x), P(F > x)) for F noncentral F(df1, df2, lambda = ncp).
 
     lambda = 0: the central F (scipy.special.fdtr / fdtrc). 0 < lambda <= LIBRARY_MAX_NCP:
-    scipy.stats.ncf; above that, or wherever scipy returns NaN at lambda >= 1e6, the
-    large-lambda integral of `_ncf_large_ncp`. (NaN, NaN) when both fail.
+    scipy.stats.ncf; where scipy returns NaN, the Poisson mixture of `_ncf_poisson_mixture` below
+    lambda = 1e6 and the large-lambda integral of `_ncf_large_ncp` above (and for every
+    lambda > LIBRARY_MAX_NCP).
     """
     if ncp == 0.0:
         return (_quiet(lambda: special.fdtr(df1, df2, x)),
@@ -198,8 +199,37 @@ def noncentral_f_tails(x: float, df1: float, df2: float, ncp: float) -> tuple[fl
         if math.isfinite(low) and math.isfinite(high):
             return low, high
         if ncp < 1e6:
-            return math.nan, math.nan
+            return _ncf_poisson_mixture(x, df1, df2, ncp)
     return _ncf_large_ncp(x, df1, df2, ncp)
+
+
+def _ncf_poisson_mixture(x: float, df1: float, df2: float, ncp: float) -> tuple[float, float]:
+    """(P(F <= x), P(F > x)) as the Poisson mixture of central F distributions,
+    P(F <= x) = sum_j e^(-lambda/2) (lambda/2)^j / j! I_y(df1/2 + j, df2/2),
+    y = df1 x / (df1 x + df2) (Johnson, Kotz & Balakrishnan 1995, ch. 30; from memory), summed
+    in logarithms over j = 0 .. lambda/2 + 40 sqrt(lambda/2) + 50, where the Poisson weights
+    beyond are below 1e-300. The fallback where scipy.special.ncfdtr returns NaN (seen at
+    scattered points with the lower tail near 1e-106, scipy 1.17.1); each tail from its own
+    sum. (NaN, NaN) when x is not a number."""
+    if not math.isfinite(x):
+        return (1.0, 0.0) if x == math.inf else (math.nan, math.nan)
+    if x <= 0:
+        return 0.0, 1.0
+    mu = ncp / 2.0
+    j = np.arange(0, int(math.ceil(mu + 40.0 * math.sqrt(mu) + 50.0)) + 1, dtype=float)
+    log_weight = j * math.log(mu) - mu - special.gammaln(j + 1.0)
+    y = df1 * x / (df1 * x + df2)
+    out = []
+    for part in (special.betainc, special.betaincc):
+        with np.errstate(all="ignore"):
+            tail = part(df1 / 2.0 + j, df2 / 2.0, y)
+        keep = tail > 0
+        if not keep.any():
+            out.append(0.0)
+            continue
+        out.append(float(min(1.0, math.exp(special.logsumexp(log_weight[keep]
+                                                              + np.log(tail[keep]))))))
+    return out[0], out[1]
 
 
 def noncentral_chi2_tails(x: float, df: float, ncp: float) -> tuple[float, float]:

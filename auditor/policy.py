@@ -295,7 +295,9 @@ MARGIN_FAMILIES = ("mean", "standardized_mean", "dominance", "shift", "variance_
 
 def _check_margins(table, source: str) -> dict:
     """[margins]: the smallest effect size of interest, by index name (any design) or by family,
-    each a positive number on the index's own scale (A: the distance from 0.5), and an optional
+    each a positive number on the index's own scale (A: the distance from 0.5; a `dominance`
+    family margin is on A's scale and doubled for Cliff's delta and the rank-biserial
+    correlations, `margins.margins_for`), and an optional
     `justification` text that the methods sentence quotes. Optional: a policy without it asks no
     question of size."""
     if not isinstance(table, dict):
