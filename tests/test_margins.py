@@ -251,3 +251,17 @@ def test_the_texts_call_an_omnibus_index_s_test_one_sided():
     assert "one-sided test below the margin p" in text and "two one-sided" not in text, text
     two = run(TWO, outcome="y", group="g", margins={"cohen_d": 0.3})
     assert "two one-sided tests p" in size_text(two, "cohen_d")
+
+
+def test_a_dominance_family_margin_asks_one_question_of_a_and_of_cliff_s_delta():
+    # 0.06 is a distance from 1/2 on A's scale; delta = 2A - 1 takes it as 0.12 from 0, so
+    # the two indices get the same two one-sided tests and the same verdict
+    result = run(TWO, outcome="y", group="g", policy=policy_with("dominance = 0.06"))
+    eqv = result.equivalence
+    assert eqv["prob_superiority"]["margin"] == 0.06
+    assert eqv["cliff_delta"]["margin"] == pytest.approx(0.12)
+    assert "0.12 on the scale of cliff_delta" in eqv["cliff_delta"]["margin_from"]
+    for key in ("p_lower", "p_upper", "p_difference"):
+        assert eqv["cliff_delta"][key] == pytest.approx(eqv["prob_superiority"][key], rel=1e-12)
+    assert eqv["cliff_delta"]["verdict"] == eqv["prob_superiority"]["verdict"]
+    assert eqv["rank_biserial"]["margin"] == pytest.approx(0.12)
