@@ -685,3 +685,20 @@ def test_student_s_sleep_data_paired_test_and_interval():
     p, lower, upper = ttost_paired(SLEEP_2, SLEEP_1, -1.0, 1.0)
     assert res.p_lower == pytest.approx(lower[1], rel=1e-8)
     assert res.p_upper == pytest.approx(upper[1], rel=1e-8)
+
+
+@pytest.mark.parametrize("margin", MASS_MARGINS[:4])
+@pytest.mark.parametrize("name,a,b", BODY_MASS, ids=[c[0] for c in BODY_MASS])
+def test_welch_tost_matches_pingouin(name, a, b, margin):
+    """pingouin.tost with correction=True (Welch) reports the larger one-sided p."""
+    res = eq.mean_difference_tost(a, b, margin, ALPHA)
+    want = float(pg.tost(a, b, bound=margin, correction=True)["pval"].iloc[0])
+    assert res.p_tost == pytest.approx(want, **CLOSE)
+
+
+@pytest.mark.parametrize("margin", PAIRED_MARGINS[:4])
+@pytest.mark.parametrize("name,x", PAIRED, ids=[c[0] for c in PAIRED])
+def test_paired_tost_matches_pingouin(name, x, margin):
+    res = eq.paired_mean_difference_tost(x, margin, ALPHA)
+    want = float(pg.tost(x[:, 0], x[:, 1], bound=margin, paired=True)["pval"].iloc[0])
+    assert res.p_tost == pytest.approx(want, **CLOSE)
