@@ -217,6 +217,9 @@ def undefined_result(index, method, estimate, null, bounds, alpha, reason, notes
 
 def assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_met, p_diff,
               interval, statistic, df, notes=()) -> EquivalenceResult:
+    """The result of two one-sided tests from their parts, with the verdict; an undefined result
+    when a p-value is not finite. A df that is None or not finite (a normal reference, a rank
+    statistic) is stored as None."""
     ps = (p_lower, p_upper, p_met, p_diff)
     if not all(math.isfinite(p) for p in ps):
         return undefined_result(index, method, estimate, null, bounds, alpha,
@@ -226,7 +229,8 @@ def assemble(index, method, estimate, null, bounds, alpha, p_lower, p_upper, p_m
     low, high = (None, None) if interval is None else (float(interval[0]), float(interval[1]))
     return EquivalenceResult(index, method, float(estimate), null, bounds[0], bounds[1], alpha,
                              p_lower, p_upper, p_tost, p_met, p_diff, low, high,
-                             1.0 - 2.0 * alpha, float(statistic), float(df),
+                             1.0 - 2.0 * alpha, float(statistic),
+                             None if df is None or not math.isfinite(df) else float(df),
                              verdict_of(p_tost, p_met, p_diff, alpha), None, tuple(notes))
 
 

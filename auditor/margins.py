@@ -20,6 +20,7 @@ import numpy as np
 
 from auditor import equivalence as eq
 from auditor import equivalence_omnibus as omnibus
+from auditor import equivalence_ranks as rank_tests
 from auditor.equivalence import VERDICTS
 
 # design -> index -> the two-one-sided-tests function, called as f(samples, margin, alpha, reference)
@@ -34,10 +35,13 @@ PROCEDURES = {
         "prob_superiority": lambda s, m, a, r: eq.prob_superiority_tost(s[0], s[1], m, a),
         "cliff_delta": lambda s, m, a, r: eq.cliff_delta_tost(s[0], s[1], m, a),
         "rank_biserial": lambda s, m, a, r: eq.rank_biserial_tost(s[0], s[1], m, a),
+        "hodges_lehmann": lambda s, m, a, r: rank_tests.hodges_lehmann_tost(s[0], s[1], m, a),
     },
     "paired": {  # the samples are the audit's rounded differences, used as given
         "mean_difference": lambda s, m, a, r: eq.paired_mean_difference_tost(s[0], m, a),
         "d_z": lambda s, m, a, r: eq.d_z_tost(s[0], m, a),
+        "hodges_lehmann": lambda s, m, a, r: rank_tests.paired_hodges_lehmann_tost(s[0], m, a),
+        "ps_dep": lambda s, m, a, r: rank_tests.ps_dep_tost(s[0], m, a),
     },
     "k_independent": {  # one-sided: the index's smallest value is its no-effect value 0
         "eta_squared": lambda s, m, a, r: omnibus.eta_squared_tost(s, m, a),

@@ -16,6 +16,7 @@ import pandas as pd
 import pytest
 
 from auditor import equivalence as eq
+from auditor import equivalence_ranks as rank_tests
 from auditor.errors import DesignError
 from auditor.margins import NOT_AVAILABLE, parse_margin_options
 from auditor.pipeline import audit
@@ -90,7 +91,25 @@ def test_paired_margins_use_the_rounded_differences():
     d = result.samples.differences
     ref = eq.d_z_tost(d, 0.5, 0.05)
     assert result.equivalence["d_z"]["p_tost"] == pytest.approx(ref.p_tost, rel=1e-12)
-    assert result.equivalence["ps_dep"]["reason"] == NOT_AVAILABLE
+    ps = rank_tests.ps_dep_tost(d, 0.1, 0.05)
+    assert result.equivalence["ps_dep"]["p_tost"] == pytest.approx(ps.p_tost, rel=1e-12)
+    assert result.equivalence["ps_dep"]["estimate"] == pytest.approx(
+        result.effect("ps_dep").estimate, rel=1e-12)
+
+
+def test_hodges_lehmann_margins_in_both_designs_and_an_index_without_a_test():
+    two = run(TWO, outcome="y", group="g", margins={"hodges_lehmann": 0.5, "r_from_z": 0.1})
+    ref = rank_tests.hodges_lehmann_tost(A, B, 0.5, 0.05)
+    record = two.equivalence["hodges_lehmann"]
+    assert record["p_tost"] == pytest.approx(ref.p_tost, rel=1e-12)
+    assert record["estimate"] == pytest.approx(two.effect("hodges_lehmann").estimate, rel=1e-12)
+    assert record["df"] is None  # a rank statistic has no degrees of freedom
+    assert two.equivalence["r_from_z"]["reason"] == NOT_AVAILABLE
+    pairs = run(PAIRS, paired_columns=["pre", "post"], margins={"hodges_lehmann": 0.4})
+    ref = rank_tests.paired_hodges_lehmann_tost(pairs.samples.differences, 0.4, 0.05)
+    assert pairs.equivalence["hodges_lehmann"]["p_tost"] == pytest.approx(ref.p_tost, rel=1e-12)
+    json.dumps(two.to_dict()["equivalence"], allow_nan=False)
+    json.dumps(pairs.to_dict()["equivalence"], allow_nan=False)
 
 
 def test_a_margin_for_an_index_the_design_does_not_have_is_refused_before_any_statistic(
