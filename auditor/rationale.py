@@ -329,8 +329,9 @@ def methods_sentence(result, decision, policy: Policy) -> str:
     s = result.settings
     return (f"Effect sizes were screened and chosen with auditor {result.tool_version} under the"
             f" policy '{policy.name}' (version {policy.version}, SHA-256"
-            f" {policy.sha256[:16]}): the primary index was {NAMES[decision.primary]} with its"
-            f" {level} {method} interval"
+            f" {policy.sha256[:16]}): the primary index was {NAMES[decision.primary]}"
+            + (f" with its {level} {method} interval" if iv.get("method") not in (None, "none")
+               else " (no interval could be computed on these data)")
             + (" (which agrees with the test by construction)" if iv.get("matched_to_test")
                else "")
             + (f", reported beside {also}" if also else "")
@@ -345,6 +346,8 @@ def _size_clause(result, name: str) -> str:
     if not record or record.get("verdict") is None:
         return ""
     why = f" ({record['justification']})" if record.get("justification") else ""
+    tests = ("two one-sided tests" if record.get("p_lower") is not None
+             else "a one-sided test below the margin")
     return (f"; equivalence and minimal-effect questions were asked at a smallest effect of"
-            f" interest of {record['margin']:g}{why} by two one-sided tests at alpha ="
+            f" interest of {record['margin']:g}{why} by {tests} at alpha ="
             f" {record['alpha']:g}")

@@ -270,6 +270,23 @@ def test_the_texts_call_an_omnibus_index_s_test_one_sided():
     assert "one-sided test below the margin p" in text and "two one-sided" not in text, text
     two = run(TWO, outcome="y", group="g", margins={"cohen_d": 0.3})
     assert "two one-sided tests p" in size_text(two, "cohen_d")
+    both = run(THREE, outcome="y", group="g",
+               margins={"eta_squared": 0.2, "epsilon_squared_h": 0.2})
+    sentence = both.decision.methods_sentence
+    assert both.decision.primary in ("eta_squared", "epsilon_squared_h"), both.decision.primary
+    assert "by a one-sided test below the margin at alpha" in sentence, sentence
+    assert " none interval" not in sentence
+
+
+def test_the_methods_sentence_says_when_the_primary_index_has_no_interval():
+    # every value one of two ratings, the groups identical: epsilon^2_H is 0 and its bootstrap
+    # interval is withheld (the estimate lies outside every resample)
+    tied = pd.DataFrame({"y": [1.0, 2.0] * 30, "g": ["a", "b", "c"] * 20})
+    result = run(tied, outcome="y", group="g")
+    sentence = result.decision.methods_sentence
+    assert result.decision.interval.get("method") == "none", result.decision.interval
+    assert "no interval could be computed on these data" in sentence, sentence
+    assert " none interval" not in sentence and "  " not in sentence, sentence
 
 
 def test_a_dominance_family_margin_asks_one_question_of_a_and_of_cliff_s_delta():
