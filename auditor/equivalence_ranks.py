@@ -108,6 +108,27 @@ def _method_note(what: str, methods: dict[str, str]) -> str:
 # ------------------------------------------------------------------ two independent groups
 
 
+SNAP = 1e-10  # relative distance below which a_i - theta and b_j count as tied
+
+
+def shifted_against(a: np.ndarray, b: np.ndarray, theta: float) -> np.ndarray:
+    """a - theta, with each value that lies within SNAP (relative to the largest magnitude of
+    the data and theta) of a value of b set to that value, so that a difference a_i - b_j equal
+    to the bound in decimal (0.4 - (-0.5) against 0.9) is an exact tie whichever group comes
+    first: the test reads |fl(a_i - b_j) - theta|, which swapping the groups and negating theta
+    leaves exactly as it was."""
+    x = a - theta
+    if theta == 0.0 or b.size == 0:
+        return x
+    sb = np.sort(b)
+    tol = SNAP * max(float(np.max(np.abs(a))), float(np.max(np.abs(b))), abs(theta))
+    pos = np.searchsorted(sb, x)
+    for side in (np.clip(pos - 1, 0, sb.size - 1), np.clip(pos, 0, sb.size - 1)):
+        near = np.abs((a - sb[side]) - theta) <= tol
+        x = np.where(near, sb[side], x)
+    return x
+
+
 def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     """TOST of the Hodges-Lehmann shift Delta (A minus B) by shifted Mann-Whitney tests.
 
@@ -121,7 +142,9 @@ def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     sample (a - theta, b) has no ties, else the normal approximation with tie correction and no
     continuity correction (`mann_whitney_tails`); the choice is made at each bound separately.
     These are scipy.stats.mannwhitneyu(a - theta, b, alternative='greater' / 'less',
-    method='exact' / 'asymptotic', use_continuity=False).
+    method='exact' / 'asymptotic', use_continuity=False), with a - theta snapped onto the values
+    of b it equals up to rounding (`shifted_against`), so that the tests do not depend on which
+    group is named first.
 
     The estimate is the median of all a_i - b_j (Hodges & Lehmann 1963) and the interval
     `ranks.hodges_lehmann(a, b, 1 - 2 alpha)`; see the module docstring for how exactly it agrees
@@ -147,8 +170,8 @@ def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
         return make(shift.value, "both groups are constant: the rank tests only see whether"
                                  " the two values differ, not by how much")
     low, high = bounds
-    up_low, down_low, _, m_low = mann_whitney_tails(a - low, b)
-    up_high, down_high, _, m_high = mann_whitney_tails(a - high, b)
+    up_low, down_low, _, m_low = mann_whitney_tails(shifted_against(a, b, low), b)
+    up_high, down_high, _, m_high = mann_whitney_tails(shifted_against(a, b, high), b)
     up0, down0, u0, m0 = mann_whitney_tails(a, b)
     p_diff = two_sided(up0, down0)
     iv = shift.interval

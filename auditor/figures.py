@@ -570,9 +570,14 @@ def _influence(result: AuditResult, ctx: _Context | None):
         pending.append((ax, order[:MAX_FLAG_LABELS], len(order), change, ok))
         lines = ", ".join(str(r) for r in flagged[:6]) + (
             f" and {len(flagged) - 6} more" if len(flagged) > 6 else "")
-        items.append((f"{name} moves by at most {num(summary.max_abs_change)}" if moved
-                      else f"{name} does not move")
-                     + (f" (line {top})" if top is not None else "")
+        decisive = summary.most_influential_row
+        decisive_i = index.get(int(decisive)) if decisive is not None else None
+        undefined = decisive_i is not None and not ok[decisive_i]
+        items.append((f"{name} is undefined without line {decisive}; otherwise it" if undefined
+                      else name)
+                     + (f" moves by at most {num(summary.max_abs_change)}" if moved
+                        else " does not move")
+                     + (f" (line {top})" if top is not None and not undefined else "")
                      + (f", flips at lines {lines}" if flagged else ", no flips"))
     handles = []
     if independent:

@@ -9,8 +9,9 @@ Jackknife SE and bias are stratified (Efron & Tibshirani 1993, sec. 11.2 and 10.
 the strata, as the BCa acceleration is): SE^2 = sum_j (n_j - 1)/n_j sum_i (theta_(ji) - mean_j)^2,
 bias = sum_j (n_j - 1)(mean_j - theta-hat).
 A unit without which the effect is undefined (every other value of its group equal, say) is left
-out of the SE and the largest change, which only finite changes have, but is the most
-influential unit (the earliest such line when there are several): the effect exists only with it.
+out of the SE and the largest change, which only finite changes have; when it is the only such
+unit it is the most influential one, since the effect exists only with it (when several are, as
+in a group of two, none of them is singled out and the largest finite change names the line).
 
 Intervals after removal: for an effect whose interval is analytic, the interval is recomputed
 exactly on the reduced data. For an effect whose interval is the bootstrap's, the bootstrap is not
@@ -254,8 +255,8 @@ def effect_influence(spec: EffectSpec, effect: Effect, samples, loo: tuple[np.nd
     max_change = float(np.max(np.abs(all_changes[finite]))) if finite.any() else None
     top_row = (int(all_rows[finite][np.argmax(np.abs(all_changes[finite]))])
                if max_change else None)  # no case moves the estimate: none is most influential
-    if not finite.all():  # a case without which the index is undefined decides it outright
-        top_row = int(np.min(all_rows[~finite]))
+    if np.count_nonzero(~finite) == 1:  # the one case without which the index is undefined
+        top_row = int(all_rows[~finite][0])  # decides it outright
 
     side = _side(theta, null)
     values = np.concatenate(loo)

@@ -56,9 +56,13 @@ NOT_AVAILABLE = ("no test against a non-zero null is built for this index yet; i
                  " can still be read against the margin")
 
 
-# dominance indices equal to 2P - 1 for a probability P (A or PS_dep): a distance m from 1/2
-# on P's scale is a distance 2m from 0 on theirs
+# dominance indices of the form 2P - 1 for a proportion P (A for Cliff's delta and the
+# rank-biserial r of two groups; the positive share of the signed-rank sum for the matched-pairs
+# rank-biserial r): a distance m from 1/2 on P's scale is a distance 2m from 0 on theirs
 TWICE_A = frozenset({"cliff_delta", "rank_biserial", "matched_rank_biserial"})
+# r = Z / sqrt(N) has no fixed relation to a proportion: a family margin does not apply to it
+# (name it in the policy or on the command line to give it one)
+NO_FAMILY_MARGIN = frozenset({"r_from_z"})
 
 
 def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[str, float],
@@ -74,7 +78,7 @@ def margins_for(effects, families: Mapping[str, str], policy_margins: Mapping[st
             out[name] = (float(given[name]), "command line")
         elif name in policy_margins:
             out[name] = (float(policy_margins[name]), "policy")
-        elif families.get(name) in policy_margins:
+        elif families.get(name) in policy_margins and name not in NO_FAMILY_MARGIN:
             m = float(policy_margins[families[name]])
             if families[name] == "dominance" and name in TWICE_A:
                 out[name] = (2.0 * m, f"policy (family dominance: {m:g} on the probability"

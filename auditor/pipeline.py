@@ -212,8 +212,9 @@ def scale_conversions(result: AuditResult):
 
 
 def margin_choice(effects, policy: Policy, given: dict[str, float]):
-    """index -> (margin, its source) for the defined effects (`margins.margins_for`)."""
-    names = [e.name for e in effects if e.estimate is not None]
+    """index -> (margin, its source) for every effect (`margins.margins_for`); an undefined one
+    gets a record with the reason, so that no margin asked for vanishes."""
+    names = [e.name for e in effects]
     families = {e.name: e.family for e in effects}
     table = {k: v for k, v in policy.settings["margins"].items() if k != "justification"}
     return margins_for(names, families, table, given)

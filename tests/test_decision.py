@@ -297,3 +297,14 @@ def test_a_case_without_which_cohen_d_is_undefined_is_the_decisive_one():
     assert outliers.fired, outliers
     named = {e.subject for e in outliers.evidence if e.subject.startswith("line ")}
     assert named == {f"line {far}"}, outliers.evidence
+
+
+def test_in_a_group_of_two_no_case_is_singled_out_for_leaving_d_undefined():
+    # removing either value of the group of two leaves one value and no SD within it; neither is
+    # decisive alone, so the most influential line is the one with the largest finite change
+    r = run(two(np.array([1.0, 2.0]), np.arange(2.0, 10.0)))
+    d = next(e for e in r.influence.effects if e.effect == "cohen_d")
+    changes = r.influence.changes["cohen_d"]
+    finite = np.isfinite(changes)
+    top = int(r.influence.rows[finite][np.argmax(np.abs(changes[finite]))])
+    assert d.most_influential_row == top, (d.most_influential_row, top)

@@ -351,3 +351,13 @@ def test_an_outlier_that_flips_the_interval_is_marked():
     fig = by_name(figures(result))["influence"]
     assert "line 6" in svg_texts(fig.svg)
     assert "(line 6)" in fig.alt
+
+
+def test_the_influence_text_names_a_case_without_which_d_is_undefined():
+    a, b = np.r_[np.full(24, 10.0), 1000.0], np.full(25, 10.0)
+    frame = pd.DataFrame({"arm": ["t"] * 25 + ["c"] * 25, "score": np.r_[a, b]})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        result = audit(frame, outcome="score", group="arm", resamples=200)
+    alt = next(f.alt for f in figures(result) if f.name == "influence")
+    assert "cohen_d is undefined without line 26; otherwise it moves by at most" in alt, alt

@@ -301,3 +301,18 @@ def test_a_dominance_family_margin_asks_one_question_of_a_and_of_cliff_s_delta()
         assert eqv["cliff_delta"][key] == pytest.approx(eqv["prob_superiority"][key], rel=1e-12)
     assert eqv["cliff_delta"]["verdict"] == eqv["prob_superiority"]["verdict"]
     assert eqv["rank_biserial"]["margin"] == pytest.approx(0.12)
+
+
+def test_a_margin_for_an_undefined_index_keeps_its_record_with_the_reason():
+    constant_b = pd.DataFrame({"y": np.r_[A[:20], np.full(20, 10.0)], "g": ["a"] * 20 + ["b"] * 20})
+    result = run(constant_b, outcome="y", group="g", margins={"glass_delta": 0.5})
+    record = result.equivalence["glass_delta"]
+    assert result.effect("glass_delta").estimate is None
+    assert record["verdict"] is None and "constant" in record["reason"], record
+
+
+def test_a_dominance_family_margin_leaves_r_from_z_alone():
+    result = run(TWO, outcome="y", group="g", policy=policy_with("dominance = 0.1"))
+    assert "r_from_z" not in result.equivalence
+    named = run(TWO, outcome="y", group="g", policy=policy_with("r_from_z = 0.1"))
+    assert named.equivalence["r_from_z"]["reason"] == NOT_AVAILABLE

@@ -34,6 +34,7 @@ from hypothesis import strategies as st
 from scipy import stats
 from statsmodels.stats.proportion import proportion_confint
 
+from auditor import equivalence_ranks as er
 from auditor import paired, ranks
 from auditor.equivalence_ranks import (hodges_lehmann_tost, paired_hodges_lehmann_tost,
                                        ps_dep_tost)
@@ -449,3 +450,33 @@ def test_normal_path_interval_is_one_order_statistic_wider():
     assert res.interval_low == diffs[k - 1]
     assert mwu_p(a - low, b, "greater") < ALPHA
     assert res.p_lower < ALPHA and res.interval_low < low
+
+
+def test_a_difference_equal_to_a_bound_in_decimal_is_a_tie_whichever_group_comes_first():
+    # 0.4 - (-0.5) and 0.9 differ in floating point (0.9000000000000001 against 0.9); without
+    # snapping, A against B used the normal approximation at the lower bound and B against A
+    # the exact distribution at the mirrored one, and their p-values differed
+    a = np.array([0.4, -0.9, -1.5, 1.8, -0.1])
+    b = np.array([0.4, -0.0, 1.3, 0.2])
+    ab, ba = er.hodges_lehmann_tost(a, b, 0.5), er.hodges_lehmann_tost(b, a, 0.5)
+    assert ab.p_lower == pytest.approx(ba.p_upper, rel=1e-12)
+    assert ab.p_upper == pytest.approx(ba.p_lower, rel=1e-12)
+    # the tie is real in decimal: scipy on the decimal-exact shifted data (in tenths) agrees
+    tenths_a, tenths_b = np.round(a * 10) + 5, np.round(b * 10)
+    want = stats.mannwhitneyu(tenths_a, tenths_b, alternative="greater", method="asymptotic",
+                              use_continuity=False).pvalue
+    assert ab.p_lower == pytest.approx(want, rel=1e-10)
+
+
+def test_swapping_decimal_groups_mirrors_the_shift_tests():
+    rng = np.random.default_rng(5)
+    for _ in range(300):
+        a = np.round(rng.normal(0, 1, rng.integers(3, 12)), 1)
+        b = np.round(rng.normal(0.3, 1, rng.integers(3, 12)), 1)
+        margin = float(rng.choice([0.3, 0.5, 1.0]))
+        ab, ba = er.hodges_lehmann_tost(a, b, margin), er.hodges_lehmann_tost(b, a, margin)
+        if ab.reason:
+            continue
+        assert ab.p_lower == pytest.approx(ba.p_upper, rel=1e-9), (a, b, margin)
+        assert ab.p_upper == pytest.approx(ba.p_lower, rel=1e-9), (a, b, margin)
+        assert ab.verdict == ba.verdict
