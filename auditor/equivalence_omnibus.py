@@ -177,7 +177,8 @@ def _anova_tost(index: str, interval_fn, groups, margin, alpha) -> EquivalenceRe
              f" noncentrality at the margin lambda_m = N m / (1 - m) = {lam_m:.6g}",)
     f_obs = found.details.get("statistic")
     return _from_interval(index, nc.F_METHOD, found, m, alpha,
-                          lambda lam: nc.noncentral_f_tails(f_obs, df1, df2, lam), lam_m, df1,
+                          lambda lam: nc.noncentral_f_tails(f_obs, df1, df2, lam, careful=True),
+                          lam_m, df1,
                           notes)
 
 

@@ -476,3 +476,20 @@ def test_the_mixture_formula_is_scipy_s_distribution_where_scipy_is_finite(x, df
     assert low == pytest.approx(stats.ncf.cdf(x, df1, df2, lam), rel=1e-10)
     assert high == pytest.approx(stats.ncf.sf(x, df1, df2, lam), rel=1e-10)
     assert low == pytest.approx(_ncf_lower_by_mixture(x, df1, df2, lam), rel=1e-10)
+
+
+@pytest.mark.parametrize("x", [1.5, 1.6, 1.665775291535044, 1.7])
+def test_a_far_lower_tail_comes_from_the_mixture_not_from_scipy_s_noise(x):
+    # scipy.special.ncfdtr(3, 156, 1440, x) gives NaN or values near 1e-106 here; the series
+    # summed with scipy.stats.poisson / beta (and the hand bound in NAN_TAIL_CASE) put it near
+    # 1e-276
+    from auditor.noncentral import noncentral_f_tails
+
+    low, high = noncentral_f_tails(x, 3, 156, 1440.0, careful=True)
+    assert low == pytest.approx(_ncf_lower_by_mixture(x, 3, 156, 1440.0), rel=1e-9)
+    assert low < 1e-270 and high == 1.0
+    # and the test at the margin (lambda_m = N m / (1 - m) = 1440 for N = 160, m = 0.9) reports it
+    groups = GROUP_SETS[NAN_TAIL_CASE[0]]
+    res = eo.eta_squared_tost(groups, NAN_TAIL_CASE[1])
+    assert res.p_upper == pytest.approx(
+        _ncf_lower_by_mixture(res.statistic, 3, 156, 1440.0), rel=1e-9)
