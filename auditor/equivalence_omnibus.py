@@ -255,7 +255,8 @@ def epsilon_squared_h_tost(groups: Sequence, margin, alpha: float = 0.05) -> Equ
     h = found.details.get("statistic")
     notes = (f"noncentral chi-squared approximation; lambda_m = m (N - 1) = {lam_m:.6g}",)
     return _from_interval("epsilon_squared_h", nc.CHI2_METHOD, found, m, alpha,
-                          lambda lam: nc.noncentral_chi2_tails(h, k - 1, lam), lam_m, k - 1,
+                          lambda lam: nc.noncentral_chi2_tails(h, k - 1, lam, careful=True),
+                          lam_m, k - 1,
                           notes)
 
 
@@ -287,5 +288,6 @@ def kendall_w_tost(x, margin, alpha: float = 0.05) -> EquivalenceResult:
     chi2 = found.details.get("statistic")
     notes = (f"noncentral chi-squared approximation; lambda_m = m n (k - 1) = {lam_m:.6g}",)
     return _from_interval("kendall_w", nc.CHI2_METHOD, found, m, alpha,
-                          lambda lam: nc.noncentral_chi2_tails(chi2, k - 1, lam), lam_m, k - 1,
+                          lambda lam: nc.noncentral_chi2_tails(chi2, k - 1, lam, careful=True),
+                          lam_m, k - 1,
                           notes)

@@ -245,10 +245,37 @@ def _ncf_poisson_mixture(x: float, df1: float, df2: float, ncp: float) -> tuple[
     return out[0], out[1]
 
 
-def noncentral_chi2_tails(x: float, df: float, ncp: float) -> tuple[float, float]:
+def _ncx2_poisson_mixture(x: float, df: float, ncp: float) -> tuple[float, float]:
+    """(P(X <= x), P(X > x)) as the Poisson mixture of central chi-squared distributions,
+    P(X <= x) = sum_j e^(-lambda/2) (lambda/2)^j / j! P(chi^2_(df + 2j) <= x) (Johnson, Kotz &
+    Balakrishnan 1995, ch. 29; from memory), summed in logarithms as `_ncf_poisson_mixture`
+    is. For tails scipy.special.chndtr rounds to 0 (below about 1e-23 here: 0 where the lower
+    tail at (0.5, 2 df, lambda 300) is 5e-63)."""
+    if not math.isfinite(x):
+        return (1.0, 0.0) if x == math.inf else (math.nan, math.nan)
+    if x <= 0:
+        return 0.0, 1.0
+    mu = ncp / 2.0
+    j = np.arange(0, int(math.ceil(mu + 40.0 * math.sqrt(mu) + 50.0)) + 1, dtype=float)
+    log_weight = j * math.log(mu) - mu - special.gammaln(j + 1.0)
+    out = []
+    for part in (special.chdtr, special.chdtrc):
+        with np.errstate(all="ignore"):
+            tail = part(df + 2.0 * j, x)
+        keep = tail > 0
+        out.append(float(min(1.0, math.exp(special.logsumexp(log_weight[keep]
+                                                              + np.log(tail[keep])))))
+                   if keep.any() else 0.0)
+    return out[0], out[1]
+
+
+def noncentral_chi2_tails(x: float, df: float, ncp: float,
+                          careful: bool = False) -> tuple[float, float]:
     """(P(X <= x), P(X > x)) for X noncentral chi-squared(df, lambda = ncp).
 
-    lambda = 0: the central chi-squared; up to LIBRARY_MAX_NCP scipy.stats.ncx2; above that
+    lambda = 0: the central chi-squared; up to LIBRARY_MAX_NCP scipy.stats.ncx2 (with `careful`,
+    for tails reported as p-values, a tail below MIXTURE_BELOW from `_ncx2_poisson_mixture`,
+    since scipy rounds far tails to 0); above that
     X = (Z + sqrt(lambda))^2 + W with W (chi-squared on df - 1) replaced by its mean df - 1, so
     P(X <= x) = Phi(r - sqrt(lambda)) - Phi(-r - sqrt(lambda)), r = sqrt(x - df + 1) (the
     variance changes by the fraction (df - 1) / (2 lambda), below 1e-8 at lambda >= 1e9 for
@@ -260,6 +287,8 @@ def noncentral_chi2_tails(x: float, df: float, ncp: float) -> tuple[float, float
         low = _quiet(lambda: special.chndtr(x, df, ncp))  # as for F: scipy.special directly
         high = (1.0 - low if low < UPPER_FROM
                 else _quiet(lambda: stats.ncx2.sf(x, df, ncp)))
+        if careful and ncp < 1e6 and not min(low, high) >= MIXTURE_BELOW:
+            return _ncx2_poisson_mixture(x, df, ncp)
         if math.isfinite(low) and math.isfinite(high):
             return low, high
         if ncp < 1e6:

@@ -493,3 +493,26 @@ def test_a_far_lower_tail_comes_from_the_mixture_not_from_scipy_s_noise(x):
     res = eo.eta_squared_tost(groups, NAN_TAIL_CASE[1])
     assert res.p_upper == pytest.approx(
         _ncf_lower_by_mixture(res.statistic, 3, 156, 1440.0), rel=1e-9)
+
+
+def _ncx2_lower_by_mixture(x, df, lam):
+    """P(X <= x | lambda) as sum_j Pois(j; lambda/2) P(chi^2_(df + 2j) <= x) (Johnson, Kotz &
+    Balakrishnan 1995, ch. 29; from memory), with scipy.stats.poisson.logpmf and chi2.logcdf."""
+    j = np.arange(0, int(lam / 2 + 40 * math.sqrt(lam / 2) + 60))
+    return float(np.exp(special.logsumexp(stats.poisson.logpmf(j, lam / 2)
+                                          + stats.chi2.logcdf(x, df + 2 * j))))
+
+
+@pytest.mark.parametrize("x, df, lam", [(0.5, 2, 300.0), (1.0, 3, 1000.0), (5.0, 3, 800.0),
+                                         (0.1, 2, 100.0), (4.0, 2, 9.0), (30.0, 3, 2.0)])
+def test_far_chi_squared_tails_reported_as_p_values_come_from_the_mixture(x, df, lam):
+    # scipy.special.chndtr rounds the first three to 0 (their lower tails are 5e-63, 9e-208
+    # and 5e-151); where scipy is finite the careful tails equal it
+    from auditor.noncentral import noncentral_chi2_tails
+
+    low, high = noncentral_chi2_tails(x, df, lam, careful=True)
+    assert low == pytest.approx(_ncx2_lower_by_mixture(x, df, lam), rel=1e-9)
+    assert low > 0.0
+    if stats.ncx2.cdf(x, df, lam) > 1e-20:
+        assert low == pytest.approx(stats.ncx2.cdf(x, df, lam), rel=1e-9)
+        assert high == pytest.approx(stats.ncx2.sf(x, df, lam), rel=1e-9)
