@@ -228,20 +228,27 @@ def _ncf_poisson_mixture(x: float, df1: float, df2: float, ncp: float) -> tuple[
         return (1.0, 0.0) if x == math.inf else (math.nan, math.nan)
     if x <= 0:
         return 0.0, 1.0
+    y = df1 * x / (df1 * x + df2)
+    return _poisson_mixture(ncp, lambda j, part: part(df1 / 2.0 + j, df2 / 2.0, y),
+                            (special.betainc, special.betaincc))
+
+
+def _poisson_mixture(ncp: float, term, parts) -> tuple[float, float]:
+    """(sum_j w_j term(j, parts[0]), sum_j w_j term(j, parts[1])) with the Poisson weights
+    w_j = e^(-lambda/2) (lambda/2)^j / j!, j = 0 .. lambda/2 + 40 sqrt(lambda/2) + 50 (beyond,
+    the weights are below 1e-300), summed in logarithms so that tails far below the smallest
+    double's square root keep their digits."""
     mu = ncp / 2.0
     j = np.arange(0, int(math.ceil(mu + 40.0 * math.sqrt(mu) + 50.0)) + 1, dtype=float)
     log_weight = j * math.log(mu) - mu - special.gammaln(j + 1.0)
-    y = df1 * x / (df1 * x + df2)
     out = []
-    for part in (special.betainc, special.betaincc):
+    for part in parts:
         with np.errstate(all="ignore"):
-            tail = part(df1 / 2.0 + j, df2 / 2.0, y)
+            tail = term(j, part)
         keep = tail > 0
-        if not keep.any():
-            out.append(0.0)
-            continue
         out.append(float(min(1.0, math.exp(special.logsumexp(log_weight[keep]
-                                                              + np.log(tail[keep]))))))
+                                                              + np.log(tail[keep])))))
+                   if keep.any() else 0.0)
     return out[0], out[1]
 
 
@@ -255,18 +262,8 @@ def _ncx2_poisson_mixture(x: float, df: float, ncp: float) -> tuple[float, float
         return (1.0, 0.0) if x == math.inf else (math.nan, math.nan)
     if x <= 0:
         return 0.0, 1.0
-    mu = ncp / 2.0
-    j = np.arange(0, int(math.ceil(mu + 40.0 * math.sqrt(mu) + 50.0)) + 1, dtype=float)
-    log_weight = j * math.log(mu) - mu - special.gammaln(j + 1.0)
-    out = []
-    for part in (special.chdtr, special.chdtrc):
-        with np.errstate(all="ignore"):
-            tail = part(df + 2.0 * j, x)
-        keep = tail > 0
-        out.append(float(min(1.0, math.exp(special.logsumexp(log_weight[keep]
-                                                              + np.log(tail[keep])))))
-                   if keep.any() else 0.0)
-    return out[0], out[1]
+    return _poisson_mixture(ncp, lambda j, part: part(df + 2.0 * j, x),
+                            (special.chdtr, special.chdtrc))
 
 
 def noncentral_chi2_tails(x: float, df: float, ncp: float,
