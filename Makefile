@@ -1,6 +1,9 @@
 # Every target builds its own virtual environment on first use, so one command does
 # all set-up on a fresh machine.
 #
+# `make test` installs the optional extras too (`auditor[dask]`), so that the Dask engine's
+# tests run on a real local cluster.
+#
 # `make test` also needs a browser: tests/browser/ opens the HTML report in Debian's headless
 # Chromium. tools/install_browser.sh installs the `chromium` package when it is missing (as root,
 # with apt-get; `apt-get update` and a second try if the first install fails), once: the stamp
@@ -18,7 +21,7 @@ BROWSER_STAMP := $(VENV)/.browser
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
-	$(PY) -m pip install --quiet -e '.[test]'
+	$(PY) -m pip install --quiet -e '.[test,dask]'
 	touch $(STAMP)
 
 # No stamp when the browser could not be had, so the next `make test` tries again.

@@ -151,6 +151,15 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--policy", metavar="PATH", help="reporting policy (default: built-in)")
     scr.add_argument("--jobs", type=int, default=1, metavar="N",
                      help="worker processes (default 1; results are identical for any N)")
+    scr.add_argument("--engine", default="local", choices=("local", "dask"),
+                     help="where the outcomes are audited: local (this machine's processes, the"
+                          " default) or dask (a Dask cluster; needs pip install 'auditor[dask]')."
+                          " Results are identical")
+    scr.add_argument("--scheduler", metavar="ADDRESS",
+                     help="with --engine dask: the address of a running Dask scheduler (e.g."
+                          " tcp://10.0.0.5:8786); without it a local cluster of --jobs workers"
+                          " is started and stopped. The workers read the data file from the same"
+                          " path, so it must be on storage they share")
     scr.add_argument("--sort", default="column", metavar="KEY",
                      help="row order: column (file order), p, p_holm, estimate (largest first),"
                           " fragility (most fragile first) or outcome (name)")
@@ -331,7 +340,7 @@ def _screen(args) -> int:
         outcomes=names(args.outcomes, "--outcomes"), exclude=names(args.exclude, "--exclude"),
         policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
         jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
-        progress=progress, margins=margins)
+        progress=progress, margins=margins, engine=args.engine, scheduler=args.scheduler)
     if not args.quiet:
         print(f"{files.rows} outcome(s) screened; {len(skipped)} column(s) skipped")
         for column, reason in skipped:

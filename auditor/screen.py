@@ -300,11 +300,16 @@ def batches(columns: list[str], rows: int, jobs: int) -> list[list[str]]:
     return [columns[i:i + size] for i in range(0, len(columns), size)]
 
 
+ENGINES = ("local", "dask")
+DASK_MISSING = ("--engine dask needs Dask, which is not installed: pip install 'auditor[dask]'"
+                " (or pip install 'dask[distributed]')")
+
+
 def _results(job: _Job, tasks: list[tuple[list[str], Table | None]], jobs: int,
              each: Callable[[str], None] | None = None) -> Iterator[list]:
     """The results of each batch, in order, serially (calling `each` after every column) or from
-    `jobs` worker processes. A task is (columns, their table or None to read them from the
-    file)."""
+    `jobs` worker processes (the local engine; `dask_results` is the Dask one). A task is
+    (columns, their table or None to read them from the file)."""
     if jobs <= 1 or len(tasks) <= 1:
         for names, table in tasks:
             yield audit_batch(job, names, table, each)
@@ -315,6 +320,59 @@ def _results(job: _Job, tasks: list[tuple[list[str], Table | None]], jobs: int,
     with ProcessPoolExecutor(max_workers=jobs, mp_context=context, initializer=_init_worker,
                              initargs=(job,)) as pool:
         yield from pool.map(_batch_in_worker, tasks, chunksize=1)
+
+
+def dask_client(jobs: int, scheduler: str | None):
+    """(client, cluster): a client of the scheduler at `scheduler`, or of a new
+    dask.distributed.LocalCluster with `jobs` single-threaded worker processes (cluster None when
+    the scheduler is someone else's). A DesignError in one line when Dask is not installed or
+    the scheduler cannot be reached."""
+    try:
+        from dask.distributed import Client, LocalCluster
+    except ImportError:
+        raise DesignError(DASK_MISSING) from None
+    if scheduler:
+        try:
+            return Client(scheduler, timeout="10s"), None
+        except (OSError, TimeoutError) as exc:
+            raise DesignError(f"--scheduler {scheduler}: no Dask scheduler answered ({exc})")
+    cluster = LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True,
+                           dashboard_address=None)
+    return Client(cluster), cluster
+
+
+def _batch_on_dask(job: _Job, names: list[str], table: Table | None) -> list:
+    return audit_batch(job, names, table)
+
+
+def close_dask(handle) -> None:
+    """Close the client of a `dask_client` pair, and the cluster when it was started here."""
+    client, cluster = handle
+    client.close()
+    if cluster is not None:
+        cluster.close()
+
+
+def dask_results(job: _Job, tasks: list[tuple[list[str], Table | None]],
+                 handle) -> Iterator[list]:
+    """The results of each batch, in order, from a Dask cluster: the job (policy, seed, ...) is
+    sent to every worker once, one task per batch, results gathered in submission order as they
+    finish. A task that holds no table makes the worker read the file itself, from the same
+    path: the workers must see the file where this process does (shared storage); one that
+    cannot stops the screen with the reader's message. Dask resubmits the batches of a worker
+    lost mid-run (its own bookkeeping). On an error or Ctrl-C the pending tasks are cancelled;
+    the caller, which opened `handle` with `dask_client`, closes it (`close_dask`)."""
+    client = handle[0]
+    futures = []
+    try:
+        shared = client.scatter(job, broadcast=True)
+        futures = [client.submit(_batch_on_dask, shared, names, table, pure=False)
+                   for names, table in tasks]
+        for future in futures:
+            yield future.result()
+    finally:
+        if futures:
+            client.cancel(futures)
 
 
 def _part(table: Table, fixed: list[str], names: list[str]) -> Table:
@@ -375,9 +433,13 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                level: float | None = None, jobs: int = 1, out: Path | None = None,
                sort: str = "column", reports: bool = False,
                progress: Callable[[int, int, str], None] | None = None,
-               margins: dict[str, float] | None = None):
+               margins: dict[str, float] | None = None, engine: str = "local",
+               scheduler: str | None = None):
     """Screen every outcome; write screen.csv, screen.json and screen.html into `out` when given.
-    Returns (rows as a list of dicts in the chosen order, skipped columns)."""
+    Returns (rows as a list of dicts in the chosen order, skipped columns). `engine` "local"
+    runs the batches here or in `jobs` processes; "dask" on a Dask cluster (`dask_results`):
+    the scheduler at `scheduler`, or a LocalCluster of `jobs` workers. Every engine gives the
+    same rows."""
     from auditor.pipeline import table_from_frame
     from auditor.policy import Policy, load_policy
 
@@ -385,6 +447,15 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         raise DesignError(f"--sort {sort}: choose one of {', '.join(SORT_KEYS)}")
     if jobs < 1:
         raise DesignError(f"--jobs {jobs}: use 1 or more")
+    if engine not in ENGINES:
+        raise DesignError(f"--engine {engine}: use one of {', '.join(ENGINES)}")
+    if scheduler and engine != "dask":
+        raise DesignError("--scheduler names a Dask scheduler: give --engine dask too")
+    if engine == "dask":
+        try:
+            import dask.distributed  # noqa: F401 - checked before any file is read
+        except ImportError:
+            raise DesignError(DASK_MISSING) from None
     from auditor.design import _choose_levels, _levels
     from auditor.pipeline import _check_settings
 
@@ -433,6 +504,9 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
     job = _Job(path, stamp, group, tuple(groups) if groups else None, subject, policy, seed,
                resamples, level, report_folder, _report_names(looked_at) if reports else None,
                tuple(sorted((margins or {}).items())))
+    # a Dask scheduler is reached before any output is written, so that one that cannot be
+    # reached leaves nothing behind
+    cluster = dask_client(jobs, scheduler) if engine == "dask" else None
     spool = io.StringIO() if out is None else None
     if out is not None:
         Path(out).mkdir(parents=True, exist_ok=True)
@@ -442,7 +516,7 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
     parts = batches(looked_at, first.n_rows, jobs)
     tasks = [(names, None if table is None else _part(table, fixed, names)) for names in parts]
     del table, first  # the batches hold what is needed
-    serial = jobs <= 1 or len(tasks) <= 1
+    serial = engine == "local" and (jobs <= 1 or len(tasks) <= 1)
     done = 0
 
     def tick(column: str) -> None:
@@ -451,8 +525,11 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         if progress is not None:
             progress(done, len(looked_at), column)
 
+    stream = None
     try:
-        for names, results in zip(parts, _results(job, tasks, jobs, tick if serial else None)):
+        stream = (dask_results(job, tasks, cluster) if cluster is not None
+                  else _results(job, tasks, jobs, tick if serial else None))
+        for names, results in zip(parts, stream):
             for column, (kind, found) in zip(names, results):
                 if not serial:
                     tick(column)
@@ -482,6 +559,10 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         files = _write_outputs(Path(out), ordered_rows, skipped, policy, seed, sort)
         return files, skipped
     finally:
+        if cluster is not None:
+            if stream is not None:
+                stream.close()  # cancels what is pending while the client is still open
+            close_dask(cluster)
         spool.close()
         if out is not None:
             try:

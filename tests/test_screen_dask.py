@@ -1,0 +1,90 @@
+"""The screen on a Dask cluster: a real dask.distributed.LocalCluster of two worker processes
+(this machine's two cores) gives byte for byte the files the local engine writes; without Dask
+the option stops in one line saying how to install it."""
+
+from __future__ import annotations
+
+import builtins
+import os
+from pathlib import Path
+
+import pytest
+
+from auditor.screen import DASK_MISSING, run_screen
+
+DEMO = Path(__file__).resolve().parent.parent / "demo" / "cycling_commute.csv"
+FILES = ("screen.csv", "screen.json", "screen.html")
+
+# make test installs the extra; under CI (as for the browser tests) a missing Dask fails here
+# instead of skipping, so that CI never passes without having run a real cluster
+if os.environ.get("CI", "").strip().lower() in ("", "0", "false", "no"):
+    pytest.importorskip("dask.distributed", reason="install with pip install 'auditor[dask]'"
+                        " (make test does)")
+else:
+    import dask.distributed  # noqa: F401
+
+
+def _screen(folder: Path, **kw) -> dict[str, bytes]:
+    run_screen(DEMO, group="scheme", resamples=300, out=folder, **kw)
+    return {name: (folder / name).read_bytes() for name in FILES}
+
+
+@pytest.fixture(scope="module")
+def local_files(tmp_path_factory):
+    return _screen(tmp_path_factory.mktemp("local"), jobs=2)
+
+
+def test_a_local_dask_cluster_writes_the_local_engine_s_files(local_files, tmp_path):
+    on_dask = _screen(tmp_path / "dask", jobs=2, engine="dask")
+    for name in FILES:
+        assert on_dask[name] == local_files[name], name
+
+
+def test_the_command_line_takes_the_engine_and_streams_the_same_table(local_files, run_cli,
+                                                                     tmp_path):
+    out = tmp_path / "cli"
+    res = run_cli("screen", DEMO, "--group", "scheme", "--boot", "300", "--jobs", "2",
+                  "--engine", "dask", "--out", out, "--quiet")
+    assert res.code == 0, res.err
+    assert (out / "screen.csv").read_bytes() == local_files["screen.csv"]
+    assert not (out / "screen.rows.jsonl").exists()  # the spool is gone once the table is whole
+
+
+def test_a_scheduler_address_is_used_as_given(local_files, tmp_path):
+    from dask.distributed import LocalCluster
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=None) as cluster:
+        found = _screen(tmp_path / "given", engine="dask", scheduler=cluster.scheduler_address)
+    assert found["screen.csv"] == local_files["screen.csv"]
+
+
+def test_without_dask_the_engine_stops_in_one_line(run_cli, tmp_path, monkeypatch):
+    real_import = builtins.__import__
+
+    def no_dask(name, *args, **kwargs):
+        if name == "dask" or name.startswith("dask."):
+            raise ImportError(f"No module named '{name}'")
+        return real_import(name, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "__import__", no_dask)
+    out = tmp_path / "none"
+    res = run_cli("screen", DEMO, "--group", "scheme", "--engine", "dask", "--out", out)
+    assert res.code == 1, (res.code, res.err)
+    assert res.err.count("\n") == 1 and "Traceback" not in res.err, res.err
+    assert "pip install 'auditor[dask]'" in res.err and DASK_MISSING in res.err
+    assert not out.exists()  # stopped before anything was written
+
+
+def test_a_scheduler_without_the_dask_engine_is_refused(run_cli, tmp_path):
+    res = run_cli("screen", DEMO, "--group", "scheme", "--scheduler", "tcp://127.0.0.1:1",
+                  "--out", tmp_path / "x")
+    assert res.code == 1 and "give --engine dask too" in res.err, res.err
+
+
+def test_an_unreachable_scheduler_is_one_line(run_cli, tmp_path):
+    res = run_cli("screen", DEMO, "--group", "scheme", "--engine", "dask", "--scheduler",
+                  "tcp://127.0.0.1:9", "--out", tmp_path / "y")
+    assert res.code == 1 and "no Dask scheduler answered" in res.err, res.err
+    assert res.err.count("\n") == 1 and "Traceback" not in res.err
+    assert not (tmp_path / "y").exists()  # nothing written before the scheduler answered
