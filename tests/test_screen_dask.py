@@ -88,3 +88,32 @@ def test_an_unreachable_scheduler_is_one_line(run_cli, tmp_path):
     assert res.code == 1 and "no Dask scheduler answered" in res.err, res.err
     assert res.err.count("\n") == 1 and "Traceback" not in res.err
     assert not (tmp_path / "y").exists()  # nothing written before the scheduler answered
+
+
+def test_a_worker_killed_mid_screen_costs_nothing_but_time(tmp_path):
+    # the first finished outcome kills one worker process outright (SIGKILL, no goodbye); the
+    # scheduler hands its batches to the other worker (and to the one its nanny restarts) and
+    # the files are still byte for byte the local engine's
+    import signal
+
+    from dask.distributed import LocalCluster
+
+    killed = []
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=None) as cluster:
+        def kill_one(done, total, column):
+            if not killed:
+                nanny = next(iter(cluster.workers.values()))
+                pid = nanny.process.process.pid
+                os.kill(pid, signal.SIGKILL)
+                killed.append(pid)
+
+        # jobs=2 cuts the screen into one-outcome batches, and 1,500 resamples make each take
+        # long enough that most are still pending or running when the first one comes back
+        folder = tmp_path / "killed"
+        run_screen(DEMO, group="scheme", resamples=1500, jobs=2, out=folder, engine="dask",
+                   scheduler=cluster.scheduler_address, progress=kill_one)
+    assert killed
+    run_screen(DEMO, group="scheme", resamples=1500, jobs=2, out=tmp_path / "local")
+    for name in FILES:
+        assert (folder / name).read_bytes() == (tmp_path / "local" / name).read_bytes(), name
