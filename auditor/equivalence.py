@@ -198,6 +198,16 @@ def not_finite(*arrays) -> str | None:
 # ------------------------------------------------------------------ the decision
 
 
+def input_problem(*samples, paired: bool = False) -> str | None:
+    """Why the tests cannot run on these samples, or None: a value that is not finite, or
+    fewer than two values in a group (two pairs, with `paired`)."""
+    reason = not_finite(*samples)
+    if reason is None and any(s.size < 2 for s in samples):
+        reason = ("too few pairs: at least two are needed" if paired
+                  else "too few values: each group needs at least two")
+    return reason
+
+
 def verdict_of(p_tost: float, p_minimal_effect: float, p_difference: float,
                alpha: float) -> str:
     """The four-way outcome of the module docstring, from the three p-values and alpha."""
@@ -415,9 +425,7 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
     make = lambda est, reason: undefined_result("prob_superiority", "brunner_munzel_t",  # noqa: E731
                                           est, 0.5, bounds, alpha, reason)
-    reason = not_finite(a, b)
-    if reason is None and (a.size < 2 or b.size < 2):
-        reason = "too few values: each group needs at least two"
+    reason = input_problem(a, b)
     if reason:
         return make(None, reason)
     with np.errstate(all="ignore"):
@@ -480,9 +488,7 @@ def d_unpooled_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
     make = lambda est, reason: undefined_result("d_unpooled", "noncentral_t_welch", est,  # noqa: E731
                                                 0.0, bounds, alpha, reason)
-    reason = not_finite(a, b)
-    if reason is None and (a.size < 2 or b.size < 2):
-        reason = "too few values: each group needs at least two"
+    reason = input_problem(a, b)
     if reason:
         return make(None, reason)
     ma, va, na = mean_var(a)
@@ -513,9 +519,7 @@ def glass_delta_tost(a, b, margin, alpha: float = 0.05, reference: int = 1) -> E
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
     make = lambda est, reason: undefined_result("glass_delta", "normal_approximation", est,  # noqa: E731
                                                 0.0, bounds, alpha, reason)
-    reason = not_finite(a, b)
-    if reason is None and (a.size < 2 or b.size < 2):
-        reason = "too few values: each group needs at least two"
+    reason = input_problem(a, b)
     if reason:
         return make(None, reason)
     ref, other = (b, a) if reference == 1 else (a, b)
@@ -549,9 +553,7 @@ def paired_mean_difference_tost(x_or_d, margin, alpha: float = 0.05, *,
     d = paired_differences(x_or_d, digits)
     make = lambda est, reason: undefined_result("mean_difference", "paired_t", est, 0.0,  # noqa: E731
                                           bounds, alpha, reason)
-    reason = not_finite(d)
-    if reason is None and d.size < 2:
-        reason = "too few pairs: at least two are needed"
+    reason = input_problem(d, paired=True)
     if reason:
         return make(None, reason)
     m, v, n = mean_var(d)
@@ -580,9 +582,7 @@ def d_z_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> Equiva
     d = paired_differences(x_or_d, digits)
     make = lambda reason: undefined_result("d_z", "noncentral_t", None, 0.0, bounds,  # noqa: E731
                                      alpha, reason)
-    reason = not_finite(d)
-    if reason is None and d.size < 2:
-        reason = "too few pairs: at least two are needed"
+    reason = input_problem(d, paired=True)
     if reason:
         return make(reason)
     m, v, n = mean_var(d)

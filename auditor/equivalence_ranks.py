@@ -55,7 +55,8 @@ from scipy import special, stats
 
 from auditor import paired, ranks
 from auditor.equivalence import (EquivalenceResult, assemble, check_alpha, check_bounds,
-                                 data_vector, not_finite, paired_differences, undefined_result)
+                                 data_vector, input_problem, paired_differences,
+                                 undefined_result)
 
 EXACT = "exact"
 NORMAL = "normal_approximation"
@@ -160,9 +161,7 @@ def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
     make = lambda est, reason: undefined_result(  # noqa: E731
         "hodges_lehmann", "mann_whitney_shift", est, 0.0, bounds, alpha, reason)
-    reason = not_finite(a, b)
-    if reason is None and (a.size < 2 or b.size < 2):
-        reason = "too few values: each group needs at least two"
+    reason = input_problem(a, b)
     if reason:
         return make(None, reason)
     shift = ranks.hodges_lehmann(a, b, 1.0 - 2.0 * alpha)
@@ -246,9 +245,7 @@ def paired_hodges_lehmann_tost(x_or_d, margin, alpha: float = 0.05, *,
     d = paired_differences(x_or_d, digits)
     make = lambda est, reason: undefined_result("hodges_lehmann", "signed_rank_shift",  # noqa: E731
                                                 est, 0.0, bounds, alpha, reason)
-    reason = not_finite(d)
-    if reason is None and d.size < 2:
-        reason = "too few pairs: at least two are needed"
+    reason = input_problem(d, paired=True)
     if reason:
         return make(None, reason)
     d = _shifted(d, 0.0, digits)
@@ -313,9 +310,7 @@ def ps_dep_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> Equ
     d = paired_differences(x_or_d, digits)
     make = lambda est, reason: undefined_result("ps_dep", "score_wilson", est, 0.5,  # noqa: E731
                                                 bounds, alpha, reason)
-    reason = not_finite(d)
-    if reason is None and d.size < 2:
-        reason = "too few pairs: at least two are needed"
+    reason = input_problem(d, paired=True)
     if reason:
         return make(None, reason)
     est = paired.ps_dep(d, np.zeros(d.size), 1.0 - 2.0 * alpha, digits)
