@@ -26,7 +26,7 @@ from auditor import counting, kgroups, noncentral, paired, ranks
 from auditor import parametric as par
 from auditor.parametric import Estimate
 from auditor.signed_rank_interval import paired_extras
-from auditor.superiority_interval import dominance_extras
+from auditor.superiority_interval import dominance_extras, dominance_holds_null
 
 
 @dataclass(frozen=True)
@@ -46,6 +46,10 @@ class EffectSpec:
     # samples -> why every resample inherits a degenerate state (complete separation, differences
     # of one sign), or None: the bootstrap interval is then withheld (`resampling.bca_interval`)
     degenerate: Callable[..., str | None] | None = None
+    # (*samples, level, method) -> whether the interval of that method on these samples contains
+    # the no-effect value, found without computing the interval, or None (not known that way):
+    # the influence checks ask only this, once per case and per step of the fragility search
+    holds_null: Callable[..., bool | None] | None = None
 
 
 def with_extras(estimate: Callable[..., Estimate], extras: Callable[..., tuple]):
@@ -95,23 +99,25 @@ def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
                    "independent observations only (ordinal outcome is enough)",
                    with_extras(ranks.prob_superiority, dominance_extras("prob_superiority")),
                    ranks.prob_superiority_values, jk.prob_superiority,
-                   ranks.prob_superiority_counts, degenerate=ranks.separation),
+                   ranks.prob_superiority_counts, degenerate=ranks.separation,
+                   holds_null=dominance_holds_null("prob_superiority")),
         EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
                    with_extras(ranks.cliff_delta, dominance_extras("cliff_delta")),
                    ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
-                   ("prob_superiority", _two_a_minus_one), ranks.separation),
+                   ("prob_superiority", _two_a_minus_one), ranks.separation,
+                   dominance_holds_null("cliff_delta")),
         EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations only (ordinal outcome is enough)",
                    with_extras(ranks.rank_biserial, dominance_extras("rank_biserial")),
                    ranks.rank_biserial_values, jk.rank_biserial,
                    ranks.cliff_delta_counts, ("prob_superiority", _two_a_minus_one),
-                   ranks.separation),
+                   ranks.separation, dominance_holds_null("rank_biserial")),
         EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
                    "independent observations; depends on N as well as on the effect",
                    with_extras(ranks.r_from_z, dominance_extras("r_from_z")),
                    ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts,
-                   degenerate=ranks.separation),
+                   degenerate=ranks.separation, holds_null=dominance_holds_null("r_from_z")),
         EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
                    "interval: the two distributions differ only by a shift",
                    ranks.hodges_lehmann, ranks.hodges_lehmann_values,

@@ -191,6 +191,11 @@ def _interval_contains(spec: EffectSpec, effect: Effect, reduced, level: float,
     analytic intervals, shifted bootstrap interval otherwise; None if no interval exists."""
     if effect.ci_low is None:
         return None
+    if effect.ci_method != "bca_bootstrap" and spec.holds_null is not None:
+        with np.errstate(all="ignore"):  # the answer without the interval's ends, when known
+            answer = spec.holds_null(*reduced, level, effect.ci_method)
+        if answer is not None:
+            return answer
     if effect.ci_method != "bca_bootstrap":
         # the index's own interval first (cheap); the intervals beside it only when the
         # effect's interval is one of those (`effects.with_extras`)

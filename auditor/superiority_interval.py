@@ -307,13 +307,56 @@ def _lower_end(a_hat: float, variance, half_var: float, c: float) -> float:
         return (a_hat - phi) - c * math.sqrt(half_var if phi == 0.5 else variance(phi))
 
     top = min(a_hat, 1.0 - EDGE)  # at a_hat = 1 the gap is 0 at phi = 1 (V(1) = 0)
-    if a_hat > 0.5 and gap(0.5) > 0.0:  # the test rejects: the end lies above 1/2
+    if _beyond_half(a_hat, half_var, c):  # the test rejects (gap(1/2) > 0): the end is above 1/2
         end = optimize.brentq(gap, 0.5, top, xtol=_XTOL)
         return end if end > 0.5 else math.nextafter(0.5, 1.0)
     top = min(a_hat, 0.5)
     if gap(EDGE) <= 0.0:  # the set reaches below EDGE (only for about 10^11 pairs or more)
         return 0.0
     return optimize.brentq(gap, EDGE, top, xtol=_XTOL)
+
+
+def _score_parts(a: np.ndarray, b: np.ndarray) -> tuple[float, float, float] | None:
+    """(A-hat, rho, rho V(1/2)) of the score interval (`superiority_score_interval`), or None
+    when a group is empty or every pooled value is tied (no interval)."""
+    if a.size == 0 or b.size == 0:
+        return None
+    pooled = np.concatenate([a, b])
+    if np.all(pooled == pooled[0]):
+        return None
+    na, nb = a.size, b.size
+    mn = float(na) * nb
+    a_hat = float(ranks.prob_superiority_values(a, b))
+    t = np.unique(pooled, return_counts=True)[1].astype(float)  # sizes of the tie blocks
+    tie_term = float(np.sum(t**3 - t))
+    var_u = float(ranks.mann_whitney_variance(na, nb, tie_term))
+    rho = var_u / (mn * (na + nb + 1) / 12.0)
+    return a_hat, rho, var_u / (mn * mn)  # rho V(1/2): the z test's variance of A-hat
+
+
+def _beyond_half(a_hat: float, half_var: float, c: float) -> bool:
+    """Whether the lower end of the score interval lies above 1/2: the test `_lower_end` applies
+    at phi = 1/2 (the same expression, so the answer is the one the interval gives)."""
+    return a_hat > 0.5 and (a_hat - 0.5) - c * math.sqrt(half_var) > 0.0
+
+
+def score_interval_holds_half(a, b, level: float, *, critical: float | None = None
+                              ) -> bool | None:
+    """Whether `superiority_score_interval(a, b, level, critical=critical)` contains 1/2, found
+    without its ends: the interval is the set of phi the score test does not reject, split at
+    1/2 by the test there (`_lower_end`), so it holds 1/2 exactly when neither end is pushed past
+    1/2 by that test, i.e. when |A-hat - 1/2| <= c sqrt(rho V(1/2)) (the tie-corrected
+    Mann-Whitney z test without continuity correction does not reject). None when there is no
+    interval. One rank pass instead of two root searches over quadratures: the fragility search
+    and the per-case recheck ask only this."""
+    a, b, level, c = _check_interval_arguments(a, b, level, critical)
+    parts = _score_parts(a, b)
+    if parts is None:
+        return None
+    a_hat, _, half_var = parts
+    if math.isinf(c):
+        return True
+    return not (_beyond_half(a_hat, half_var, c) or _beyond_half(1.0 - a_hat, half_var, c))
 
 
 def superiority_score_interval(a, b, level: float, *, critical: float | None = None
@@ -339,19 +382,11 @@ def superiority_score_interval(a, b, level: float, *, critical: float | None = N
     Returns None when a group is empty or every pooled value is tied.
     """
     a, b, level, c = _check_interval_arguments(a, b, level, critical)
-    if a.size == 0 or b.size == 0:
+    parts = _score_parts(a, b)
+    if parts is None:
         return None
-    pooled = np.concatenate([a, b])
-    if np.all(pooled == pooled[0]):
-        return None
+    a_hat, rho, half_var = parts
     na, nb = a.size, b.size
-    mn = float(na) * nb
-    a_hat = float(ranks.prob_superiority_values(a, b))
-    t = np.unique(pooled, return_counts=True)[1].astype(float)  # sizes of the tie blocks
-    tie_term = float(np.sum(t**3 - t))
-    var_u = float(ranks.mann_whitney_variance(na, nb, tie_term))
-    rho = var_u / (mn * (na + nb + 1) / 12.0)
-    half_var = var_u / (mn * mn)  # rho V(1/2): the z test's variance of A-hat
 
     def variance(phi: float) -> float:
         return rho * proportional_odds_variance(phi, na, nb)
@@ -443,6 +478,18 @@ def matched_interval(a: np.ndarray, b: np.ndarray, level: float) -> Interval | N
     return superiority_score_interval(a, b, level, critical=critical)
 
 
+def matched_holds_half(a: np.ndarray, b: np.ndarray, level: float) -> bool | None:
+    """Whether `matched_interval(a, b, level)` contains 1/2 (`score_interval_holds_half` with the
+    same critical value); None when there is no interval."""
+    if a.size == 0 or b.size == 0:
+        return None
+    pooled = np.concatenate([a, b])
+    critical = None
+    if mann_whitney_is_exact(a.size, b.size, np.unique(pooled).size == pooled.size):
+        critical = exact_critical_value(a.size, b.size, level)
+    return score_interval_holds_half(a, b, level, critical=critical)
+
+
 def carried(interval: Interval | None, slope: float, at_half: float, bounds: tuple[float, float],
             method: str) -> Interval | None:
     """An interval of A carried to an index that is the increasing linear function
@@ -487,3 +534,20 @@ def dominance_extras(name: str):
         return () if slope is None else (carried(iv, slope, 0.0, (-1.0, 1.0),
                                                  METHOD + "_via_A"),)
     return extras
+
+
+def dominance_holds_null(name: str):
+    """For the registry: (a, b, level, method) -> whether the interval of `method` that
+    `dominance_extras(name)` reports contains the index's no-effect value, or None (another
+    method, or no interval: the caller computes it). The carried intervals are increasing maps
+    of A's with 1/2 going to 0 (clipping to [-1, 1] keeps 0 inside), so each holds its no-effect
+    value exactly when A's holds 1/2."""
+    method = METHOD if name == "prob_superiority" else METHOD + "_via_A"
+
+    def holds_null(a, b, level, asked: str) -> bool | None:
+        if asked != method:
+            return None
+        if name == "r_from_z" and r_from_z_slope(a, b) is None:
+            return None
+        return matched_holds_half(a, b, level)
+    return holds_null

@@ -1054,3 +1054,39 @@ def test_no_case_is_most_influential_when_no_removal_changes_the_estimate():
     info = result.to_dict()["influence"]["effects"]["prob_superiority"]
     assert info["max_abs_change"] == 0.0 and info["most_influential_row"] is None
     assert result.to_dict()["influence"]["effects"]["cohen_d"]["most_influential_row"] is not None
+
+
+# ------------------------------------------------------------------ containment without the ends
+
+
+def _shortcut_cases():
+    rng = np.random.default_rng(20261204)
+    yield "untied, exact test", np.round(rng.lognormal(0.4, 0.8, 30), 4), \
+        np.round(rng.lognormal(0.0, 0.8, 30), 4)
+    yield "heavy ties", np.clip(np.round(rng.normal(4.6, 1.4, 60)), 1, 7), \
+        np.clip(np.round(rng.normal(4.0, 1.4, 60)), 1, 7)
+    far = rng.normal(0.0, 1.0, 120)
+    far[3] = 25.0
+    yield "one extreme case", far + 0.45, rng.normal(0.0, 1.0, 120)
+    yield "nearly separated", rng.normal(2.5, 1.0, 12), rng.normal(0.0, 1.0, 12)
+
+
+@pytest.mark.parametrize("case, a, b", list(_shortcut_cases()))
+def test_the_containment_shortcut_leaves_every_influence_record_as_it_was(case, a, b,
+                                                                         monkeypatch):
+    """The dominance indices answer "does the interval on the reduced data hold the no-effect
+    value?" from the test at 1/2 instead of recomputing the score interval's ends; the report's
+    influence section (interval flips, fragility counts and the cases removed) must be the one
+    the recomputation gives."""
+    import auditor.effects as effects
+
+    frame = pd.DataFrame({"g": ["A"] * a.size + ["B"] * b.size, "y": np.concatenate([a, b])})
+    kw = dict(outcome="y", group="g", resamples=200, seed=11)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        quick = audit(frame, **kw).to_dict()["influence"]
+        monkeypatch.setattr(effects, "dominance_holds_null", lambda name: None)
+        recomputed = audit(frame, **kw).to_dict()["influence"]
+    assert quick == recomputed
+    searched = [e for e in quick["effects"].values() if e["fragility_null"]["count"] is not None]
+    assert searched  # the case did run a search

@@ -366,3 +366,46 @@ def test_coverage_near_separation():
     for true_a, n, cov, sep in rows:
         print(f"{true_a:5.2f} {n:4d} {cov:9.3f} {sep:12.3f}")
     assert all(cov >= 0.88 for _, _, cov, _ in rows), rows
+
+
+# ================================================================ containment without the ends
+
+
+@STEADY
+@given(st.one_of(untied_pair(), tied_pair()), st.sampled_from(LEVELS))
+def test_holding_one_half_is_read_without_the_ends_as_the_interval_gives_it(pair, level):
+    """The influence checks ask only whether the interval holds 1/2; the answer from the z test
+    at 1/2 must be the interval's own, and scipy's asymptotic test's."""
+    a, b = pair
+    iv = si.superiority_score_interval(a, b, level)
+    held = si.score_interval_holds_half(a, b, level)
+    if iv is None:
+        assert held is None
+        return
+    assert held == (not _excludes_half(iv))
+    assert held == (_asymptotic_p(a, b) >= 1 - level)
+
+
+@STEADY
+@given(st.one_of(untied_pair(max_size=20), tied_pair()), st.sampled_from(LEVELS))
+def test_the_matched_interval_s_containment_matches_its_ends(pair, level):
+    a, b = pair
+    iv = si.matched_interval(a, b, level)
+    held = si.matched_holds_half(a, b, level)
+    assert held == (None if iv is None else not _excludes_half(iv))
+
+
+@STEADY
+@given(st.one_of(untied_pair(), tied_pair()), st.sampled_from(LEVELS),
+       st.sampled_from(["prob_superiority", "cliff_delta", "rank_biserial", "r_from_z"]))
+def test_each_dominance_index_s_containment_matches_its_reported_interval(pair, level, name):
+    a, b = pair
+    null = 0.5 if name == "prob_superiority" else 0.0
+    reported = si.dominance_extras(name)(a, b, level)
+    holds = si.dominance_holds_null(name)
+    for iv in reported:
+        assert holds(a, b, level, iv.method) == (iv.low <= null <= iv.high)
+    if not reported:
+        method = si.METHOD if name == "prob_superiority" else si.METHOD + "_via_A"
+        assert holds(a, b, level, method) is None
+    assert holds(a, b, level, "brunner_munzel") is None  # another method: not answered here
