@@ -137,11 +137,25 @@ def build_parser() -> argparse.ArgumentParser:
         epilog="Examples:\n"
                "  auditor screen study.csv --group arm --out reports/screen\n"
                "  auditor screen study.csv --group arm --groups coached,usual --jobs 2 --sort p\n"
-               "  auditor screen visits.csv --group visit --subject id --exclude age,site",
+               "  auditor screen visits.csv --group visit --subject id --exclude age,site\n"
+               "  auditor screen waves/ --group arm --jobs 2 --out reports/waves\n"
+               "  auditor screen --manifest sites.csv --engine dask --jobs 2\n"
+               "\n"
+               "Several files give one table with a file column: Holm and BH across every row"
+               " (p_holm, p_bh)\nand within each file (p_holm_file, p_bh_file); each row's seed"
+               " is the one a screen of its file\nalone would give it.",
         formatter_class=argparse.RawDescriptionHelpFormatter)
-    scr.add_argument("file", help="data file: .csv, .tsv or .xlsx")
-    scr.add_argument("--group", metavar="COLUMN", required=True,
-                     help="column holding the group or condition labels")
+    scr.add_argument("file", nargs="*",
+                     help="data file (.csv, .tsv or .xlsx); several files, a folder (its data"
+                          " files) or a quoted pattern such as 'waves/*.csv' screen them all into"
+                          " one table with a file column")
+    scr.add_argument("--manifest", metavar="CSV",
+                     help="a CSV listing the files to screen, one per line: a 'file' column and"
+                          " optional group, groups, subject, outcomes and exclude columns (empty"
+                          " cells take the options given here); paths relative to the manifest")
+    scr.add_argument("--group", metavar="COLUMN",
+                     help="column holding the group or condition labels (required, unless every"
+                          " line of --manifest names its own)")
     scr.add_argument("--groups", metavar="A,B[,C...]", help="the levels to compare, in order")
     scr.add_argument("--subject", metavar="COLUMN",
                      help="participant id column: paired or repeated conditions (long file)")
@@ -206,6 +220,20 @@ def main(argv: list[str] | None = None) -> int:
             try:
                 parser.error(f"check needs {' and '.join(missing)} (or --paired COL_A,COL_B for a"
                              " wide file)")
+            except _UsageError:
+                return EXIT_USAGE
+    if args.command == "screen":
+        problem = None
+        if args.manifest and args.file:
+            problem = "screen takes the files either as names or in --manifest, not both"
+        elif not args.manifest and not args.file:
+            problem = ("screen needs a data file (or several, a folder, a quoted pattern, or"
+                       " --manifest CSV)")
+        elif not args.manifest and not args.group:
+            problem = "screen needs --group (or a --manifest whose lines name their group)"
+        if problem:
+            try:
+                parser.error(problem)
             except _UsageError:
                 return EXIT_USAGE
     debug = getattr(args, "debug", False)
@@ -317,7 +345,8 @@ def _screen(args) -> int:
     from auditor.design import parse_group_list
     from auditor.errors import AuditError
     from auditor.margins import parse_margin_options
-    from auditor.screen import MULTIPLE_OUTCOMES_NOTE, run_screen
+    from auditor.screen import MULTIPLE_OUTCOMES_NOTE, run_screen, run_screens
+    from auditor.sources import read_manifest, sources_from_paths
 
     try:
         margins = parse_margin_options(args.margin)
@@ -335,16 +364,27 @@ def _screen(args) -> int:
             print(f"\r[{'#' * filled}{'.' * (width - filled)}] {done}/{total} {outcome[:30]:<30}",
                   end="" if done < total else "\n", file=sys.stderr, flush=True)
 
-    files, skipped = run_screen(
-        args.file, group=args.group, groups=names(args.groups, "--groups"), subject=args.subject,
-        outcomes=names(args.outcomes, "--outcomes"), exclude=names(args.exclude, "--exclude"),
-        policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
-        jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
-        progress=progress, margins=margins, engine=args.engine, scheduler=args.scheduler)
+    options = dict(groups=names(args.groups, "--groups"), subject=args.subject,
+                   outcomes=names(args.outcomes, "--outcomes"),
+                   exclude=names(args.exclude, "--exclude"))
+    settings = dict(policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
+                    jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
+                    progress=progress, margins=margins, engine=args.engine,
+                    scheduler=args.scheduler)
+    single = (not args.manifest and len(args.file) == 1 and Path(args.file[0]).is_file())
+    if single:
+        files, skipped = run_screen(args.file[0], group=args.group, **options, **settings)
+    else:
+        if args.manifest:
+            sources = read_manifest(args.manifest, group=args.group, **options)
+        else:
+            sources = sources_from_paths(args.file, group=args.group, **options)
+        files, skipped = run_screens(sources, **settings)
     if not args.quiet:
         print(f"{files.rows} outcome(s) screened; {len(skipped)} column(s) skipped")
-        for column, reason in skipped:
-            print(f"  skipped '{column}': {reason}")
+        for entry in skipped:
+            where = f"'{entry[0]}'" if single else f"{entry[0]}: '{entry[1]}'"
+            print(f"  skipped {where}: {entry[-1]}")
         print(f"written: {files.csv}, {files.json}, {files.html}")
         print(MULTIPLE_OUTCOMES_NOTE)
     return EXIT_OK

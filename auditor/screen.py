@@ -40,6 +40,7 @@ import numpy as np
 from auditor.errors import AuditError, DesignError, InputFileError
 from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
 from auditor.decide import quoted_interval
+from auditor.sources import Source
 from auditor.pipeline import SCREEN_COMPANIONS
 from auditor.policy import INDICES
 
@@ -179,17 +180,17 @@ class _Job:
     margins: tuple[tuple[str, float], ...] = ()  # --margin INDEX=VALUE, over the policy's
 
 
-_WORKER_JOB: _Job | None = None
+_WORKER_JOBS: tuple[_Job, ...] = ()
 
 
-def _init_worker(job: _Job) -> None:  # runs once in each worker process
-    global _WORKER_JOB
-    _WORKER_JOB = job
+def _init_worker(jobs: tuple[_Job, ...]) -> None:  # runs once in each worker process
+    global _WORKER_JOBS
+    _WORKER_JOBS = jobs
 
 
 def _batch_in_worker(task) -> list:
-    names, table = task
-    return audit_batch(_WORKER_JOB, names, table)
+    k, names, table = task
+    return audit_batch(_WORKER_JOBS[k], names, table)
 
 
 def file_stamp(path) -> tuple[int, int]:
@@ -268,13 +269,15 @@ def audit_one(job: _Job, outcome: str, table: Table) -> dict:
     return row
 
 
-def _report_names(outcomes) -> dict:
-    """A distinct folder name per outcome: names that map to the same folder get -2, -3, ..."""
+def _report_names(outcomes, prefix: str | None = None, taken: set | None = None) -> dict:
+    """A distinct folder name per outcome (prefixed with `prefix`, a file's stem, in a screen of
+    many files, where `taken` holds the names given to the files before): names that map to the
+    same folder get -2, -3, ..."""
     from auditor.report import folder_name
 
-    names, taken = {}, set()
+    names, taken = {}, set() if taken is None else taken
     for outcome in outcomes:
-        base = folder_name(outcome)
+        base = folder_name(outcome if prefix is None else f"{prefix}-{outcome}")
         name, k = base, 1
         while name.lower() in taken:
             k += 1
@@ -305,21 +308,29 @@ DASK_MISSING = ("--engine dask needs Dask, which is not installed: pip install '
                 " (or pip install 'dask[distributed]')")
 
 
-def _results(job: _Job, tasks: list[tuple[list[str], Table | None]], jobs: int,
-             each: Callable[[str], None] | None = None) -> Iterator[list]:
-    """The results of each batch, in order, serially (calling `each` after every column) or from
-    `jobs` worker processes (the local engine; `dask_results` is the Dask one). A task is
-    (columns, their table or None to read them from the file)."""
+def _results(jobs_of: tuple[_Job, ...], tasks: list[tuple[int, list[str], Table | None]],
+             jobs: int, each: Callable[[str], None] | None = None) -> Iterator[tuple[int, list]]:
+    """(task number, results) of each batch: serially and in order (calling `each` after every
+    column), or from `jobs` worker processes as they finish (the local engine; `dask_results` is
+    the Dask one). A task is (source number, columns, their table or None to read them from the
+    source's file)."""
     if jobs <= 1 or len(tasks) <= 1:
-        for names, table in tasks:
-            yield audit_batch(job, names, table, each)
+        for t, (k, names, table) in enumerate(tasks):
+            yield t, audit_batch(jobs_of[k], names, table, each)
         return
     import multiprocessing
+    from concurrent.futures import as_completed
 
     context = multiprocessing.get_context("spawn")
     with ProcessPoolExecutor(max_workers=jobs, mp_context=context, initializer=_init_worker,
-                             initargs=(job,)) as pool:
-        yield from pool.map(_batch_in_worker, tasks, chunksize=1)
+                             initargs=(jobs_of,)) as pool:
+        futures = {pool.submit(_batch_in_worker, task): t for t, task in enumerate(tasks)}
+        try:
+            for future in as_completed(futures):
+                yield futures[future], future.result()
+        finally:
+            for future in futures:
+                future.cancel()
 
 
 def dask_client(jobs: int, scheduler: str | None):
@@ -341,7 +352,20 @@ def dask_client(jobs: int, scheduler: str | None):
     return Client(cluster), cluster
 
 
-def _batch_on_dask(job: _Job, names: list[str], table: Table | None) -> list:
+WORKER_CANNOT_READ = ("a Dask worker ({worker}) cannot read this file ({why}); with --engine dask"
+                      " the workers read the data files themselves, from the path given here,"
+                      " so the files must be on shared storage every worker sees at that path")
+
+
+def _batch_on_dask(jobs_of: tuple[_Job, ...], k: int, names: list[str],
+                   table: Table | None) -> list:
+    job = jobs_of[k]
+    if table is None and job.path is not None and not os.access(job.path, os.R_OK):
+        import socket
+
+        why = "no such file" if not os.path.exists(job.path) else "permission denied"
+        raise InputFileError(f"{job.path}: " + WORKER_CANNOT_READ.format(
+            worker=socket.gethostname(), why=why))
     return audit_batch(job, names, table)
 
 
@@ -353,23 +377,26 @@ def close_dask(handle) -> None:
         cluster.close()
 
 
-def dask_results(job: _Job, tasks: list[tuple[list[str], Table | None]],
-                 handle) -> Iterator[list]:
-    """The results of each batch, in order, from a Dask cluster: the job (policy, seed, ...) is
-    sent to every worker once, one task per batch, results gathered in submission order as they
-    finish. A task that holds no table makes the worker read the file itself, from the same
-    path: the workers must see the file where this process does (shared storage); one that
-    cannot stops the screen with the reader's message. Dask resubmits the batches of a worker
-    lost mid-run (its own bookkeeping). On an error or Ctrl-C the pending tasks are cancelled;
-    the caller, which opened `handle` with `dask_client`, closes it (`close_dask`)."""
+def dask_results(jobs_of: tuple[_Job, ...], tasks: list[tuple[int, list[str], Table | None]],
+                 handle) -> Iterator[tuple[int, list]]:
+    """(task number, results) of each batch from a Dask cluster, as the batches finish: the
+    jobs (policy, seed, ...) are sent to every worker once, one task per batch. A task that
+    holds no table makes the worker read the file itself, from the same path: the workers must
+    see the file where this process does (shared storage); one that cannot stops the screen
+    with a message naming the file and the worker. Dask resubmits the batches of a worker lost
+    mid-run (its own bookkeeping). On an error or Ctrl-C the pending tasks are cancelled; the
+    caller, which opened `handle` with `dask_client`, closes it (`close_dask`)."""
+    from dask.distributed import as_completed
+
     client = handle[0]
     futures = []
     try:
-        shared = client.scatter(job, broadcast=True)
-        futures = [client.submit(_batch_on_dask, shared, names, table, pure=False)
-                   for names, table in tasks]
-        for future in futures:
-            yield future.result()
+        shared = client.scatter(jobs_of, broadcast=True)
+        futures = [client.submit(_batch_on_dask, shared, k, names, table, pure=False)
+                   for k, names, table in tasks]
+        number = {future.key: t for t, future in enumerate(futures)}
+        for future in as_completed(futures):
+            yield number[future.key], future.result()
     finally:
         if futures:
             client.cancel(futures)
@@ -428,19 +455,23 @@ def _sort_value(row: dict, key: str, position: int):
     return (1, 0) if value is None else (0, value)
 
 
-def run_screen(data, *, group: str, groups=None, subject: str | None = None, outcomes=None,
-               exclude=None, policy=None, seed: int | None = None, resamples: int | None = None,
-               level: float | None = None, jobs: int = 1, out: Path | None = None,
-               sort: str = "column", reports: bool = False,
-               progress: Callable[[int, int, str], None] | None = None,
-               margins: dict[str, float] | None = None, engine: str = "local",
-               scheduler: str | None = None):
-    """Screen every outcome; write screen.csv, screen.json and screen.html into `out` when given.
-    Returns (rows as a list of dicts in the chosen order, skipped columns). `engine` "local"
-    runs the batches here or in `jobs` processes; "dask" on a Dask cluster (`dask_results`):
-    the scheduler at `scheduler`, or a LocalCluster of `jobs` workers. Every engine gives the
-    same rows."""
-    from auditor.pipeline import table_from_frame
+@dataclasses.dataclass(frozen=True)
+class _Plan:
+    """What the screen of one data source does: its job, its columns and its batches."""
+
+    label: str | None  # the file column's value (None: a single-source screen has no file column)
+    job: _Job
+    wanted: list[str]  # the columns named or found, in file order
+    excluded: frozenset
+    looked_at: list[str]  # the candidate outcomes
+    skipped: list  # (column, reason), known before any outcome is audited
+    parts: list[list[str]]  # the batches of columns
+    tables: list  # per batch: its own table, or None when the workers read the file
+
+
+def _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler):
+    """The checked settings shared by every source: (policy, seed)."""
+    from auditor.pipeline import _check_settings
     from auditor.policy import Policy, load_policy
 
     if sort not in SORT_KEYS:
@@ -456,15 +487,31 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
             import dask.distributed  # noqa: F401 - checked before any file is read
         except ImportError:
             raise DesignError(DASK_MISSING) from None
-    from auditor.design import _choose_levels, _levels
-    from auditor.pipeline import _check_settings
-
     policy = policy if isinstance(policy, Policy) else load_policy(policy)
     seed = policy.value("bootstrap", "seed") if seed is None else seed
     _check_settings(policy.value("intervals", "level") if level is None else level,
                     policy.value("bootstrap", "resamples") if resamples is None else resamples,
                     seed)
-    seed = int(seed)
+    return policy, int(seed)
+
+
+def _check_margins(margins) -> tuple[tuple[str, float], ...]:
+    known = {name for table in INDICES.values() for name in table}
+    for name in sorted(margins or {}):
+        if name not in known:
+            raise DesignError(f"--margin {name}: not an index; use one of"
+                              f" {', '.join(sorted(known))}")
+    return tuple(sorted((margins or {}).items()))
+
+
+def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dict,
+          split_for: int) -> _Plan:
+    """Read the header of one source (a path or a data frame), check the options against it and
+    cut its outcomes into batches (`batches`, split for `split_for` jobs). `common` holds the
+    settings of every source (policy, seed, resamples, level, margins, report_folder)."""
+    from auditor.design import _choose_levels, _levels
+    from auditor.pipeline import table_from_frame
+
     fixed = [group] + ([subject] if subject else [])
     table = path = stamp = None
     if isinstance(data, (str, os.PathLike)):
@@ -491,19 +538,109 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         _choose_levels(_levels([x.strip() for x in first.columns[group]]),
                        list(groups) if groups else None, name, group, "--groups")
     looked_at, skipped = candidate_columns(header, group, subject, outcomes, exclude)
+    folder = common["report_folder"]
+    names = None
+    if folder is not None:
+        names = _report_names(looked_at, None if label is None else Path(label).stem,
+                              common["report_taken"])
+    job = _Job(path, stamp, group, tuple(groups) if groups else None, subject, common["policy"],
+               common["seed"], common["resamples"], common["level"], folder, names,
+               common["margins"])
+    parts = batches(looked_at, first.n_rows, split_for)
+    tables = [None if table is None else _part(table, fixed, names_) for names_ in parts]
+    return _Plan(label, job, wanted, frozenset(exclude or ()), looked_at, skipped, parts, tables)
+
+
+def run_screen(data, *, group: str, groups=None, subject: str | None = None, outcomes=None,
+               exclude=None, policy=None, seed: int | None = None, resamples: int | None = None,
+               level: float | None = None, jobs: int = 1, out: Path | None = None,
+               sort: str = "column", reports: bool = False,
+               progress: Callable[[int, int, str], None] | None = None,
+               margins: dict[str, float] | None = None, engine: str = "local",
+               scheduler: str | None = None):
+    """Screen every outcome of one data file or data frame; write screen.csv, screen.json and
+    screen.html into `out` when given. Returns (rows as a list of dicts in the chosen order,
+    skipped columns as (column, reason)) without `out`, else (ScreenFiles, skipped). `engine`
+    "local" runs the batches here or in `jobs` processes; "dask" on a Dask cluster
+    (`dask_results`): the scheduler at `scheduler`, or a LocalCluster of `jobs` workers. Every
+    engine gives the same rows. `run_screens` screens many files into one table."""
+    policy, seed = _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler)
+    _refuse_writing_over([data], out)
+    common = _common(policy, seed, resamples, level, margins, reports, out)
+    plan = _plan(data, None, group=group, groups=groups, subject=subject, outcomes=outcomes,
+                 exclude=exclude, common=common, split_for=jobs)
+    return _execute([plan], policy=policy, seed=seed, jobs=jobs, out=out, sort=sort,
+                    progress=progress, engine=engine, scheduler=scheduler)
+
+
+def run_screens(sources: list[Source], *, policy=None, seed: int | None = None, resamples: int | None = None,
+                level: float | None = None, jobs: int = 1, out: Path | None = None,
+                sort: str = "column", reports: bool = False,
+                progress: Callable[[int, int, str], None] | None = None,
+                margins: dict[str, float] | None = None, engine: str = "local",
+                scheduler: str | None = None):
+    """Screen many data files (`sources.Source`s, from `sources.sources_from_paths` or
+    `sources.read_manifest`)
+    into one table: every row carries its file, and the Holm and Benjamini-Hochberg adjustments
+    are given across all rows (p_holm, p_bh) and within each file (p_holm_file, p_bh_file). A
+    row's seed is its outcome's, as in a single-file screen, so a file screened alone or among
+    others gives the same rows. Every file is checked (header, columns, groups) before any
+    outcome is audited. Returns as `run_screen`, skipped columns as (file, column, reason)."""
+    sources = list(sources)
+    if not sources:
+        raise DesignError("no data file to screen: name files, a folder, a pattern or --manifest")
+    policy, seed = _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler)
+    _refuse_writing_over([s.path for s in sources], out)
+    common = _common(policy, seed, resamples, level, margins, reports, out)
+    seen: dict[str, str] = {}
+    for source in sources:
+        key = os.path.normcase(os.path.realpath(source.path))
+        if key in seen:
+            raise DesignError(f"{source.label}: listed twice (also as {seen[key]}); screen each"
+                              " file once (a second grouping of the same file needs its own run)")
+        seen[key] = source.label
+    plans = [_plan(s.path, s.label, group=s.group, groups=s.groups, subject=s.subject,
+                   outcomes=s.outcomes, exclude=s.exclude, common=common, split_for=1)
+             for s in sources]
+    return _execute(plans, policy=policy, seed=seed, jobs=jobs, out=out, sort=sort,
+                    progress=progress, engine=engine, scheduler=scheduler)
+
+
+OUTPUT_NAMES = ("screen.csv", "screen.json", "screen.html", "screen.rows.jsonl")
+
+
+def _refuse_writing_over(paths, out) -> None:
+    """A data file that is one of the screen's own output files would be overwritten (and, in a
+    folder screened again, screened as data): refuse before any work."""
+    if out is None:
+        return
+    outputs = {os.path.normcase(os.path.realpath(Path(out) / name)): name for name in OUTPUT_NAMES}
+    for path in paths:
+        if isinstance(path, (str, os.PathLike)):
+            if os.path.normcase(os.path.realpath(path)) in outputs:
+                raise DesignError(f"{path}: is one of the screen's own output files in {out};"
+                                  " choose another --out")
+
+
+def _common(policy, seed, resamples, level, margins, reports, out) -> dict:
     report_folder = None
     if reports:
         if out is None:
             raise DesignError("--reports needs --out: the reports are written beside the screen")
         report_folder = str(Path(out) / "reports")
-    known = {name for table in INDICES.values() for name in table}
-    for name in sorted(margins or {}):
-        if name not in known:
-            raise DesignError(f"--margin {name}: not an index; use one of"
-                              f" {', '.join(sorted(known))}")
-    job = _Job(path, stamp, group, tuple(groups) if groups else None, subject, policy, seed,
-               resamples, level, report_folder, _report_names(looked_at) if reports else None,
-               tuple(sorted((margins or {}).items())))
+    return {"policy": policy, "seed": seed, "resamples": resamples, "level": level,
+            "margins": _check_margins(margins), "report_folder": report_folder,
+            "report_taken": set()}  # report folder names given so far, across the files
+
+
+def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, engine, scheduler):
+    """Run every plan's batches on the engine, spool the rows, adjust the p-values and write
+    the outputs (or return the rows)."""
+    many = plans[0].label is not None
+    jobs_of = tuple(plan.job for plan in plans)
+    tasks = [(k, names, table) for k, plan in enumerate(plans)
+             for names, table in zip(plan.parts, plan.tables)]
+    total = sum(len(plan.looked_at) for plan in plans)
     # a Dask scheduler is reached before any output is written, so that one that cannot be
     # reached leaves nothing behind
     cluster = dask_client(jobs, scheduler) if engine == "dask" else None
@@ -512,10 +649,8 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         Path(out).mkdir(parents=True, exist_ok=True)
         spool_path = Path(out) / "screen.rows.jsonl"
         spool = spool_path.open("w+", encoding="utf-8")
-    keys, pvalues, offsets = [], [], []
-    parts = batches(looked_at, first.n_rows, jobs)
-    tasks = [(names, None if table is None else _part(table, fixed, names)) for names in parts]
-    del table, first  # the batches hold what is needed
+    arrived = []  # per spooled row: (plan, column position, offset, sort key, p)
+    skipped = [[] for _ in plans]  # per plan: (column, reason) found while auditing
     serial = engine == "local" and (jobs <= 1 or len(tasks) <= 1)
     done = 0
 
@@ -523,28 +658,52 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
         nonlocal done
         done += 1
         if progress is not None:
-            progress(done, len(looked_at), column)
+            progress(done, total, column)
 
     stream = None
     try:
-        stream = (dask_results(job, tasks, cluster) if cluster is not None
-                  else _results(job, tasks, jobs, tick if serial else None))
-        for names, results in zip(parts, stream):
-            for column, (kind, found) in zip(names, results):
+        stream = (dask_results(jobs_of, tasks, cluster) if cluster is not None
+                  else _results(jobs_of, tasks, jobs, tick if serial else None))
+        for t, results in stream:
+            k, names = tasks[t][0], tasks[t][1]
+            plan = plans[k]
+            first = plan.looked_at.index(names[0]) if names else 0
+            for j, (column, (kind, found)) in enumerate(zip(names, results)):
                 if not serial:
                     tick(column)
                 if kind == "skipped":
-                    skipped.append((column, found))
+                    skipped[k].append((column, found))
                     continue
-                i = len(offsets)
-                offsets.append(spool.tell())
+                if many:
+                    found = {"file": plan.label, **found}
+                offset = spool.tell()
                 spool.write(json.dumps(found, allow_nan=False, default=_plain_number) + "\n")
-                keys.append(_sort_value(found, sort if sort not in ("p_holm",) else "p", i))
-                pvalues.append(found.get("p"))
-        # the excluded columns first, then the others in the order of the columns
-        position, excluded = {c: i for i, c in enumerate(wanted)}, set(exclude or ())
-        skipped.sort(key=lambda s: (s[0] not in excluded, position.get(s[0], -1)))
-        adjusted = (holm(pvalues), benjamini_hochberg(pvalues))
+                arrived.append((k, first + j, offset, found))
+        # every row in (file, column) order, whatever order the batches came back in
+        arrived.sort(key=lambda r: (r[0], r[1]))
+        position = [(k, j) for k, j, _, _ in arrived]
+        offsets = [offset for _, _, offset, _ in arrived]
+        pvalues = [found.get("p") for *_, found in arrived]
+        key_name = sort if sort != "p_holm" else "p"
+        keys = [_sort_value(found, key_name, i) for i, (*_, found) in enumerate(arrived)]
+        del arrived
+        listed = []
+        for k, plan in enumerate(plans):  # the excluded columns first, then in column order
+            place = {c: i for i, c in enumerate(plan.wanted)}
+            found = list(plan.skipped) + skipped[k]
+            found.sort(key=lambda s: (s[0] not in plan.excluded, place.get(s[0], -1)))
+            listed += [(plan.label, c, r) if many else (c, r) for c, r in found]
+        adjusted = [holm(pvalues), benjamini_hochberg(pvalues)]
+        if many:  # and within each file
+            within = [[None] * len(pvalues), [None] * len(pvalues)]
+            for k in range(len(plans)):
+                members = [i for i, (kk, _) in enumerate(position) if kk == k]
+                for a, method in enumerate((holm, benjamini_hochberg)):
+                    for i, value in zip(members, method([pvalues[i] for i in members])):
+                        within[a][i] = value
+            adjusted += within
+        if sort == "outcome" and many:
+            keys = [(key, position[i][0]) for i, key in enumerate(keys)]
         order = sorted(range(len(offsets)), key=lambda i: (keys[i], i))
 
         def ordered_rows() -> Iterator[dict]:
@@ -552,12 +711,15 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                 spool.seek(offsets[i])
                 row = json.loads(spool.readline())
                 row["p_holm"], row["p_bh"] = adjusted[0][i], adjusted[1][i]
+                if many:
+                    row["p_holm_file"], row["p_bh_file"] = adjusted[2][i], adjusted[3][i]
                 yield row
 
         if out is None:
-            return list(ordered_rows()), skipped
-        files = _write_outputs(Path(out), ordered_rows, skipped, policy, seed, sort)
-        return files, skipped
+            return list(ordered_rows()), listed
+        files = _write_outputs(Path(out), ordered_rows, listed, policy, seed, sort,
+                               [p.label for p in plans] if many else None)
+        return files, listed
     finally:
         if cluster is not None:
             if stream is not None:
@@ -595,29 +757,41 @@ def _clean(value):
     return value
 
 
-def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort) -> ScreenFiles:
+MANY_FIELDS = ("file",) + FIELDS + ("p_holm_file", "p_bh_file")  # a screen of many files
+
+
+def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort,
+                   labels: list[str] | None = None) -> ScreenFiles:
+    """Write screen.csv, screen.json and screen.html from the rows; `labels` (the files, in a
+    screen of many) adds the file column and the within-file adjustments."""
     paths = out / "screen.csv", out / "screen.json", out / "screen.html"
     count = 0
+    many = labels is not None
+    if many:
+        skipped_doc = [{"file": f, "column": c, "reason": r} for f, c, r in skipped]
+        files_doc = ',\n  "files": ' + json.dumps(labels)
+    else:
+        skipped_doc = [{"column": c, "reason": r} for c, r in skipped]
+        files_doc = ""
     try:
         with paths[0].open("w", encoding="utf-8", newline="") as f_csv, \
                 paths[1].open("w", encoding="utf-8") as f_json, \
                 paths[2].open("w", encoding="utf-8") as f_html:
             writer = csv.writer(f_csv)
-            fields = list(FIELDS) + ["report"]
+            fields = list(MANY_FIELDS if many else FIELDS) + ["report"]
             writer.writerow(fields)
             f_json.write('{\n  "policy": ' + json.dumps(policy.stamp()) + ',\n  "seed": '
                          + json.dumps(seed) + ',\n  "sorted_by": ' + json.dumps(sort)
-                         + ',\n  "note": ' + json.dumps(MULTIPLE_OUTCOMES_NOTE)
-                         + ',\n  "skipped": ' + json.dumps([{"column": c, "reason": r}
-                                                            for c, r in skipped])
+                         + ',\n  "note": ' + json.dumps(MULTIPLE_OUTCOMES_NOTE) + files_doc
+                         + ',\n  "skipped": ' + json.dumps(skipped_doc)
                          + ',\n  "rows": [')
-            f_html.write(_html_head(policy, seed, skipped))
+            f_html.write(_html_head(policy, seed, skipped, labels))
             for row in ordered_rows():
                 row = {k: _clean(v) for k, v in row.items()}
                 writer.writerow(["" if row.get(f) is None else row.get(f) for f in fields])
                 f_json.write(("\n    " if count == 0 else ",\n    ")
                              + json.dumps(row, allow_nan=False))
-                f_html.write(_html_row(row))
+                f_html.write(_html_row(row, many))
                 count += 1
             f_json.write("\n  ]\n}\n")
             f_html.write(_HTML_TAIL)
@@ -644,27 +818,39 @@ def _fmt(x, digits=3) -> str:
     return str(x)
 
 
-def _html_head(policy, seed, skipped) -> str:
+_MANY_COLUMNS = ((("file", "file"),) + _HTML_COLUMNS
+                 + (("p_holm_file", "p (Holm, file)"), ("p_bh_file", "p (BH, file)")))
+
+
+def _html_head(policy, seed, skipped, labels=None) -> str:
     e = html.escape
-    skipped_html = "".join(f"<li>{e(c)}: {e(r)}</li>" for c, r in skipped)
+    many = labels is not None
+    skipped_html = "".join(
+        f"<li>{e(s[0])}: {e(s[1])}: {e(s[2])}</li>" if many else f"<li>{e(s[0])}: {e(s[1])}</li>"
+        for s in skipped)
+    columns = _MANY_COLUMNS if many else _HTML_COLUMNS
     head = "".join(f'<th data-col="{i}" tabindex="0">{e(t)}</th>'
-                   for i, (_, t) in enumerate(_HTML_COLUMNS))
+                   for i, (_, t) in enumerate(columns))
+    title = (f"Screen of all outcomes of {len(labels)} files" if many
+             else "Screen of all outcomes")
+    adjusted = (" Holm and BH adjust across every row of every file; the '(file)' columns"
+                " adjust within each file." if many else "")
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-            "<title>Screen of all outcomes</title><style>" + _CSS + "</style></head><body>"
-            f"<h1>Screen of all outcomes</h1><p>Policy '{e(policy.name)}' {e(policy.version)}"
+            f"<title>{e(title)}</title><style>" + _CSS + "</style></head><body>"
+            f"<h1>{e(title)}</h1><p>Policy '{e(policy.name)}' {e(policy.version)}"
             f" (SHA-256 {e(policy.sha256[:16])}), seed {e(str(seed))}. Click a column heading to"
-            " sort.</p>"
+            f" sort.{e(adjusted)}</p>"
             f"<p class=\"note\">{e(MULTIPLE_OUTCOMES_NOTE)}</p>"
             + (f"<p>Skipped columns:</p><ul>{skipped_html}</ul>" if skipped else "")
             + f"<table id=\"screen\"><thead><tr>{head}</tr></thead><tbody>\n")
 
 
-def _html_row(row: dict) -> str:
+def _html_row(row: dict, many: bool = False) -> str:
     e = html.escape
     flags = ", ".join(k.replace("_", " ") for k in ("non_normal", "unequal_spread", "heavy_ties",
                                                     "outliers", "small_sample") if row.get(k))
     cells = []
-    for key, _ in _HTML_COLUMNS:
+    for key, _ in (_MANY_COLUMNS if many else _HTML_COLUMNS):
         if key == "flags":
             text, sort = flags, flags
         elif key == "interval":

@@ -884,7 +884,7 @@ def test_a_data_frame_screen_sends_each_worker_only_its_batch(monkeypatch):
     real_results = screen_module._results
 
     def recording(job, tasks, jobs, each=None):
-        sent.extend(sorted(table.columns) for _, table in tasks)
+        sent.extend(sorted(table.columns) for _, _, table in tasks)
         return real_results(job, tasks, jobs, each)
 
     monkeypatch.setattr(screen_module, "BATCH_OUTCOMES", 2)
