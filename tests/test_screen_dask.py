@@ -117,3 +117,80 @@ def test_a_worker_killed_mid_screen_costs_nothing_but_time(tmp_path):
     run_screen(DEMO, group="scheme", resamples=1500, jobs=2, out=tmp_path / "local")
     for name in FILES:
         assert (folder / name).read_bytes() == (tmp_path / "local" / name).read_bytes(), name
+
+
+# ------------------------------------------------------------------ many files
+
+
+def _small_file(path: Path, seed: int) -> None:
+    import numpy as np
+
+    rng = np.random.default_rng(seed)
+    lines = ["arm,y1,y2"]
+    for label, shift in (("treated", 0.5), ("control", 0.0)):
+        lines += [f"{label},{rng.normal(shift, 1):.3f},{rng.lognormal(shift, 0.7):.3f}"
+                  for _ in range(12)]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
+def test_a_manifest_of_a_hundred_files_on_dask_is_the_local_table(tmp_path):
+    from auditor.screen import run_screens
+    from auditor.sources import read_manifest
+
+    (tmp_path / "sites").mkdir()
+    for k in range(100):
+        _small_file(tmp_path / "sites" / f"site{k:03d}.csv", k)
+    manifest = tmp_path / "manifest.csv"
+    manifest.write_text("file,group\n" + "".join(f"sites/site{k:03d}.csv,arm\n"
+                                                 for k in range(100)), encoding="utf-8")
+    sources = read_manifest(manifest)
+    written = {}
+    for engine in ("local", "dask"):
+        out = tmp_path / engine
+        files, _ = run_screens(sources, resamples=200, jobs=2, out=out, engine=engine)
+        assert files.rows == 200
+        written[engine] = {name: (out / name).read_bytes() for name in FILES}
+    for name in FILES:
+        assert written["dask"][name] == written["local"][name], name
+
+
+class _HideFile:
+    """A worker plugin: the worker process cannot read one path (as on a worker without the
+    shared storage the data file sits on)."""
+
+    def __init__(self, path: str):
+        self.path = path
+
+    def setup(self, worker):
+        import os as worker_os
+
+        real = worker_os.access
+        hidden = self.path
+
+        def access(path, mode, *args, **kwargs):
+            if worker_os.fspath(path) == hidden:
+                return False
+            return real(path, mode, *args, **kwargs)
+
+        worker_os.access = access
+
+
+def test_a_worker_that_cannot_read_the_file_stops_the_screen_in_one_line(run_cli, tmp_path):
+    from dask.distributed import Client, LocalCluster, WorkerPlugin
+
+    data = tmp_path / "private.csv"
+    _small_file(data, 1)
+    plugin = type("HideFile", (_HideFile, WorkerPlugin), {})(str(data))
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
+                      dashboard_address=None) as cluster, Client(cluster) as client:
+        client.register_plugin(plugin)
+        out = tmp_path / "out"
+        res = run_cli("screen", data, "--group", "arm", "--boot", "200", "--engine", "dask",
+                      "--scheduler", cluster.scheduler_address, "--out", out, "--quiet")
+    assert res.code == 1, res.err
+    assert "Traceback" not in res.err
+    lines = res.err.strip().splitlines()
+    assert len(lines) == 1, res.err
+    for needle in (str(data), "a Dask worker", "cannot read this file", "shared", "storage"):
+        assert needle in lines[0], (needle, lines[0])
+    assert not any((out / name).exists() for name in FILES + ("screen.rows.jsonl",))
