@@ -350,6 +350,128 @@ def run_one_size(path: str, warmup: str, outcomes: int, resamples: int, jobs: in
             "gap": gap, "interval_gap": interval_gap, "file_bytes": os.path.getsize(path)}
 
 
+# ------------------------------------------------------------------ engines, files, workers
+
+
+def _noop(x):
+    return x
+
+
+def write_manifest(folder: Path, files: int, outcomes: int) -> Path:
+    """`files` data files of `outcomes` outcomes each (file k holds columns k*outcomes ...), and
+    a manifest listing them."""
+    (folder / "files").mkdir(parents=True, exist_ok=True)
+    lines = ["file,group"]
+    for k in range(files):
+        name = f"files/part{k:03d}.csv"
+        columns = [outcome_values(k * outcomes + j) for j in range(outcomes)]
+        with (folder / name).open("w", encoding="utf-8", newline="") as f:
+            writer = csv.writer(f)
+            writer.writerow(["arm"] + [f"y{k * outcomes + j:04d}" for j in range(outcomes)])
+            for g, label in enumerate(LABELS):
+                for i in range(GROUP_SIZE):
+                    writer.writerow([label] + [_cell(c[g][i]) for c in columns])
+        lines.append(f"{name},arm")
+    manifest = folder / "manifest.csv"
+    manifest.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return manifest
+
+
+def run_engines(path: str, manifest: str, resamples: int, jobs: int, tasks: int) -> dict:
+    """Runs in a fresh spawned process: the same screen on the local engine with 1 and `jobs`
+    workers and on a Dask LocalCluster of `jobs` workers (its start timed apart), for one file
+    and for a manifest of many; the scheduler's cost per task and the bytes a batch moves."""
+    import pickle
+
+    from dask.distributed import Client, LocalCluster
+
+    from auditor.screen import _Job, audit_batch, run_screen, run_screens
+    from auditor.sources import read_manifest
+
+    policy = bootstrap_policy()
+    sources = read_manifest(manifest)
+    out: dict = {}
+    with tempfile.TemporaryDirectory() as folder, warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+
+        def timed(name, fn):
+            start = time.perf_counter()
+            fn(Path(folder) / name)
+            out[name] = time.perf_counter() - start
+            return {f: (Path(folder) / name / f).read_bytes()
+                    for f in ("screen.csv", "screen.json")}
+
+        one = dict(group="arm", resamples=resamples, policy=policy)
+        many = dict(resamples=resamples, policy=policy)
+        base = timed("file_local_1", lambda o: run_screen(path, jobs=1, out=o, **one))
+        same = timed("file_local_j", lambda o: run_screen(path, jobs=jobs, out=o, **one)) == base
+        start = time.perf_counter()
+        with LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True,
+                          dashboard_address=None) as cluster, Client(cluster) as client:
+            out["cluster_start"] = time.perf_counter() - start
+            address = cluster.scheduler_address
+            same &= timed("file_dask", lambda o: run_screen(path, jobs=jobs, out=o,
+                                                            engine="dask", scheduler=address,
+                                                            **one)) == base
+            many_local = timed("many_local_j", lambda o: run_screens(sources, jobs=jobs, out=o,
+                                                                     **many))
+            same_many = timed("many_dask", lambda o: run_screens(
+                sources, jobs=jobs, out=o, engine="dask", scheduler=address, **many)) == many_local
+            client.submit(_noop, 0).result()  # the scheduler's cost per task, warm
+            start = time.perf_counter()
+            client.gather(client.map(_noop, range(tasks), pure=False))
+            out["per_task"] = (time.perf_counter() - start) / tasks
+        timed("many_local_1", lambda o: run_screens(sources, jobs=1, out=o, **many))
+        # what one batch of 50 outcomes moves: its task (the column names; the job is sent
+        # once per worker) and its results
+        from auditor.load import read_table
+
+        header = read_table(path, ["arm"]).header
+        names = [c for c in header if c != "arm"][:50]
+        job = _Job(str(Path(path).resolve()), None, "arm", None, None, policy, 2026, resamples,
+                   None, None)
+        results = audit_batch(dataclasses_replace_stamp(job, path), names)
+        out["bytes_job"] = len(pickle.dumps(job))
+        out["bytes_task"] = len(pickle.dumps((0, names, None)))
+        out["bytes_results"] = len(pickle.dumps(results))
+        out["batch_outcomes"] = len(names)
+    out["same_file"], out["same_many"] = same, same_many
+    return out
+
+
+def dataclasses_replace_stamp(job, path):
+    import dataclasses
+
+    from auditor.screen import file_stamp
+
+    return dataclasses.replace(job, stamp=file_stamp(path))
+
+
+def report_engines(r: dict, outcomes: int, files: int, per_file: int, jobs: int) -> None:
+    print(f"engines, {outcomes} outcomes in one file (B as above, {jobs} workers):"
+          f" local 1 worker {r['file_local_1']:.1f} s, local {jobs} workers"
+          f" {r['file_local_j']:.1f} s, Dask LocalCluster {r['file_dask']:.1f} s (+"
+          f" {r['cluster_start']:.1f} s to start the cluster); Dask / local ="
+          f" {r['file_dask'] / r['file_local_j']:.2f} (within 15% expected), with the cluster's"
+          f" start {(r['file_dask'] + r['cluster_start']) / r['file_local_j']:.2f}; files"
+          f" identical: {r['same_file']}")
+    print(f"scaling with workers (local engine, one file): 1 -> {jobs} workers"
+          f" {r['file_local_1'] / r['file_local_j']:.2f}x faster (ideal {jobs}.00x)")
+    print(f"manifest of {files} files x {per_file} outcomes: local 1 worker"
+          f" {r['many_local_1']:.1f} s, local {jobs} workers {r['many_local_j']:.1f} s, Dask"
+          f" {r['many_dask']:.1f} s; Dask / local = {r['many_dask'] / r['many_local_j']:.2f};"
+          f" 1 -> {jobs} workers {r['many_local_1'] / r['many_local_j']:.2f}x; tables identical:"
+          f" {r['same_many']}")
+    per_outcome = r["file_local_1"] / outcomes
+    print(f"Dask's cost per task here: {r['per_task'] * 1e3:.2f} ms (a no-op task, submitted"
+          f" and gathered), {r['per_task'] / (per_outcome * r['batch_outcomes']):.2%} of a batch"
+          f" of {r['batch_outcomes']} outcomes ({per_outcome * r['batch_outcomes']:.1f} s on one"
+          f" worker); bytes moved: the job {r['bytes_job'] / 1024:.1f} KiB once per worker, a"
+          f" task {r['bytes_task']} B (column names; the worker reads the columns from the"
+          f" file), its results {r['bytes_results'] / 1024:.1f} KiB"
+          f" ({r['bytes_results'] / r['batch_outcomes']:.0f} B per outcome)")
+
+
 # ------------------------------------------------------------------ report
 
 
@@ -372,6 +494,17 @@ def main(argv=None) -> int:
     parser.add_argument("--baseline-outcomes", type=int, default=None, metavar="K",
                         help="outcomes the baseline is timed on, then scaled (default 4, one of"
                              " each shape; 2 with --quick)")
+    parser.add_argument("--engines", action="store_true",
+                        help="also compare the engines (local with 1 and --jobs workers, Dask"
+                             " LocalCluster with --jobs) on the largest N and on a manifest of"
+                             " --manifest-files files, and time Dask's cost per task (needs"
+                             " auditor[dask])")
+    parser.add_argument("--manifest-files", type=int, default=None, metavar="F",
+                        help="files in the manifest case (default 100; 10 with --quick), each"
+                             " with --outcomes-per-file outcomes")
+    parser.add_argument("--outcomes-per-file", type=int, default=None, metavar="K",
+                        help="outcomes per file of the manifest case (default 10; 2 with"
+                             " --quick)")
     parser.add_argument("--with-default", action="store_true",
                         help="also time the screen under the default policy (analytic intervals,"
                              " so no bootstrap), for information")
@@ -405,6 +538,13 @@ def main(argv=None) -> int:
                 runs[n] = pool.submit(run_one_size, str(path), str(warmup), n, resamples,
                                       args.jobs, baseline_count, repeats,
                                       args.with_default).result()
+            if args.engines and n == counts[-1]:
+                files = args.manifest_files or (10 if args.quick else 100)
+                per_file = args.outcomes_per_file or (2 if args.quick else 10)
+                manifest = write_manifest(Path(folder) / "many", files, per_file)
+                with ProcessPoolExecutor(max_workers=1, mp_context=context) as pool:
+                    engines = pool.submit(run_engines, str(path), str(manifest), resamples,
+                                          args.jobs, 200 if args.quick else 1000).result()
             path.unlink()
     for n in counts:
         r = runs[n]
@@ -438,6 +578,8 @@ def main(argv=None) -> int:
               f" outcome, scaled from {r['baseline_count']} of {n}){target}{cores}; without the"
               f" fragility search {lean / r['seconds']:.1f}x ({r['baseline_per_outcome']:.3f} s"
               f" per outcome)")
+    if args.engines:
+        report_engines(engines, counts[-1], files, per_file, args.jobs)
     for n in counts:
         r = runs[n]
         print(f"memory, {n} outcomes: extra peak {r['extra_peak'] / 2**20:.1f} MiB in the screening"
