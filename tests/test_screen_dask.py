@@ -194,3 +194,27 @@ def test_a_worker_that_cannot_read_the_file_stops_the_screen_in_one_line(run_cli
     for needle in (str(data), "a Dask worker", "cannot read this file", "shared", "storage"):
         assert needle in lines[0], (needle, lines[0])
     assert not any((out / name).exists() for name in FILES + ("screen.rows.jsonl",))
+
+
+def test_ctrl_c_cancels_the_pending_tasks_and_leaves_no_table(tmp_path):
+    import time
+
+    from dask.distributed import Client, LocalCluster
+
+    def interrupt(done, total, column):
+        raise KeyboardInterrupt  # as Ctrl-C arrives while the first results come back
+
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                      dashboard_address=None) as cluster, Client(cluster) as watcher:
+        out = tmp_path / "out"
+        with pytest.raises(KeyboardInterrupt):
+            run_screen(DEMO, group="scheme", resamples=1500, jobs=2, out=out, engine="dask",
+                       scheduler=cluster.scheduler_address, progress=interrupt)
+        assert not any((out / name).exists() for name in FILES + ("screen.rows.jsonl",))
+        deadline = time.monotonic() + 10  # the scheduler forgets the cancelled tasks
+        while time.monotonic() < deadline:
+            left = watcher.run_on_scheduler(lambda dask_scheduler: len(dask_scheduler.tasks))
+            if left == 0:
+                break
+            time.sleep(0.1)
+        assert left == 0

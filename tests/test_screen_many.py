@@ -287,3 +287,15 @@ def test_file_names_are_escaped_in_the_page(tmp_path):
     assert "<b>x&y" not in page and "&lt;b&gt;x&amp;y" in page
     assert json.loads((out / "screen.json").read_text(encoding="utf-8"))["files"][0].endswith(
         "<b>x&y/a.csv")
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_ctrl_c_leaves_no_table_and_no_spool(waves, tmp_path, jobs):
+    def interrupt(done, total, column):
+        raise KeyboardInterrupt
+
+    out = tmp_path / "out"
+    with pytest.raises(KeyboardInterrupt):
+        run_screens(sources_from_paths([str(waves)], group="arm"), resamples=BOOT, jobs=jobs,
+                    out=out, progress=interrupt)
+    assert not any((out / name).exists() for name in FILES + ("screen.rows.jsonl",))
