@@ -465,17 +465,23 @@ def mann_whitney_is_exact(n_a: int, n_b: int, untied: bool) -> bool:
     return untied and n_a * n_b <= ranks.EXACT_MAX_PAIRS
 
 
+def _matched_critical(a: np.ndarray, b: np.ndarray, level: float) -> float | None:
+    """The critical value of the Mann-Whitney test the tool reports on these groups: the exact
+    test's (`exact_critical_value`) when that test is exact, None (the normal quantile)
+    otherwise."""
+    pooled = np.concatenate([a, b])
+    if mann_whitney_is_exact(a.size, b.size, np.unique(pooled).size == pooled.size):
+        return exact_critical_value(a.size, b.size, level)
+    return None
+
+
 def matched_interval(a: np.ndarray, b: np.ndarray, level: float) -> Interval | None:
     """The proportional-odds score interval of A with the critical value of the Mann-Whitney test
-    the tool reports: the exact test's (`exact_critical_value`) when that test is exact, the
-    normal quantile otherwise. So it excludes 1/2 exactly when the reported test rejects."""
+    the tool reports (`_matched_critical`), so it excludes 1/2 exactly when the reported test
+    rejects."""
     if a.size == 0 or b.size == 0:
         return None
-    pooled = np.concatenate([a, b])
-    critical = None
-    if mann_whitney_is_exact(a.size, b.size, np.unique(pooled).size == pooled.size):
-        critical = exact_critical_value(a.size, b.size, level)
-    return superiority_score_interval(a, b, level, critical=critical)
+    return superiority_score_interval(a, b, level, critical=_matched_critical(a, b, level))
 
 
 def matched_holds_half(a: np.ndarray, b: np.ndarray, level: float) -> bool | None:
@@ -483,11 +489,7 @@ def matched_holds_half(a: np.ndarray, b: np.ndarray, level: float) -> bool | Non
     same critical value); None when there is no interval."""
     if a.size == 0 or b.size == 0:
         return None
-    pooled = np.concatenate([a, b])
-    critical = None
-    if mann_whitney_is_exact(a.size, b.size, np.unique(pooled).size == pooled.size):
-        critical = exact_critical_value(a.size, b.size, level)
-    return score_interval_holds_half(a, b, level, critical=critical)
+    return score_interval_holds_half(a, b, level, critical=_matched_critical(a, b, level))
 
 
 def carried(interval: Interval | None, slope: float, at_half: float, bounds: tuple[float, float],

@@ -23,6 +23,7 @@ from auditor.effects import two_group_effects
 from auditor.policy import default_policy
 from auditor.screen import (FIELDS, MULTIPLE_OUTCOMES_NOTE, SORT_KEYS, benjamini_hochberg, holm,
                             outcome_seed, screen)
+from cli_checks import one_line_error as _one_line_error
 
 DEMO = Path(__file__).resolve().parents[1] / "demo" / "cycling_commute.csv"
 DEMO_ARGS = ("--group", "scheme", "--groups", "buddy,solo")
@@ -96,15 +97,6 @@ def _rows_csv(folder) -> list[dict]:
 
 def _document(folder, strict_json) -> dict:
     return strict_json((Path(folder) / "screen.json").read_text(encoding="utf-8"))
-
-
-def _one_line_error(res, *needles):
-    assert res.code == 1, (res.code, res.err)
-    assert "Traceback" not in res.err
-    lines = res.err.strip().splitlines()
-    assert len(lines) == 1, res.err
-    for needle in needles:
-        assert needle in lines[0], (needle, lines[0])
 
 
 def _numeric_share_columns(path: Path, skip: set[str]) -> list[str]:

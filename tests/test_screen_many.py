@@ -17,6 +17,7 @@ from statsmodels.stats.multitest import multipletests
 
 from auditor.screen import FIELDS, MANY_FIELDS, run_screen, run_screens
 from auditor.sources import expand, read_manifest, sources_from_paths
+from cli_checks import one_line_error as _one_line_error
 
 BOOT = 200
 FILES = ("screen.csv", "screen.json", "screen.html")
@@ -51,15 +52,6 @@ def waves(tmp_path):
 def _csv_rows(folder) -> list[dict]:
     with (Path(folder) / "screen.csv").open(encoding="utf-8", newline="") as f:
         return list(csv.DictReader(f))
-
-
-def _one_line_error(res, *needles):
-    assert res.code == 1, (res.code, res.err)
-    assert "Traceback" not in res.err
-    lines = res.err.strip().splitlines()
-    assert len(lines) == 1, res.err
-    for needle in needles:
-        assert needle in lines[0], (needle, lines[0])
 
 
 # ------------------------------------------------------------------ one table, same rows
