@@ -917,13 +917,25 @@ def screen(frame, *, group: str, groups=None, subject: str | None = None, outcom
            level: float | None = None, jobs: int = 1, sort: str = "column"):
     """Screen every numeric column of a pandas DataFrame (or a file path) against `group`;
     returns a pandas DataFrame with one row per outcome (columns: FIELDS). Skipped columns are
-    listed in `result.attrs["skipped"]`."""
+    listed in `result.attrs["skipped"]`. A list of paths (files, folders or patterns, as on the
+    command line) screens them all into one table with a file column (columns: MANY_FIELDS;
+    skipped columns as (file, column, reason))."""
     import pandas as pd
 
-    rows, skipped = run_screen(frame, group=group, groups=groups, subject=subject,
-                               outcomes=outcomes, exclude=exclude, policy=policy, seed=seed,
-                               resamples=resamples, level=level, jobs=jobs, sort=sort)
-    table = pd.DataFrame(rows, columns=[f for f in FIELDS])
+    from auditor.sources import sources_from_paths
+
+    settings = dict(policy=policy, seed=seed, resamples=resamples, level=level, jobs=jobs,
+                    sort=sort)
+    if isinstance(frame, (list, tuple)):
+        sources = sources_from_paths([str(p) for p in frame], group=group, groups=groups,
+                                     subject=subject, outcomes=outcomes, exclude=exclude)
+        rows, skipped = run_screens(sources, **settings)
+        fields = MANY_FIELDS
+    else:
+        rows, skipped = run_screen(frame, group=group, groups=groups, subject=subject,
+                                   outcomes=outcomes, exclude=exclude, **settings)
+        fields = FIELDS
+    table = pd.DataFrame(rows, columns=list(fields))
     table.attrs["skipped"] = list(skipped)
     table.attrs["note"] = MULTIPLE_OUTCOMES_NOTE
     return table

@@ -291,3 +291,13 @@ def test_ctrl_c_leaves_no_table_and_no_spool(waves, tmp_path, jobs):
         run_screens(sources_from_paths([str(waves)], group="arm"), resamples=BOOT, jobs=jobs,
                     out=out, progress=interrupt)
     assert not any((out / name).exists() for name in FILES + ("screen.rows.jsonl",))
+
+
+def test_the_python_screen_takes_a_list_of_paths(waves):
+    from auditor.screen import screen
+
+    table = screen([waves / "wave0.csv", str(waves / "wave2.csv")], group="arm", resamples=BOOT)
+    assert list(table.columns) == list(MANY_FIELDS)
+    assert list(table["file"]) == [str(waves / "wave0.csv")] * 3 + [str(waves / "wave2.csv")] * 3
+    alone = screen(waves / "wave2.csv", group="arm", resamples=BOOT)
+    assert list(table["estimate"][3:]) == list(alone["estimate"])
