@@ -82,6 +82,10 @@ def build_parser() -> argparse.ArgumentParser:
                             " (default: the built-in policy; see 'auditor policy init')")
     check.add_argument("--json", metavar="PATH",
                        help="write the JSON document to PATH ('-' for standard output)")
+    check.add_argument("--table", metavar="PATH",
+                       help="write the effect sizes as a CSV table, one row per index and"
+                            " comparison (estimate, the quoted interval and its method, the"
+                            " bootstrap interval, label), to PATH ('-' for standard output)")
     check.add_argument("--out", metavar="DIR", nargs="?", const="",
                        help="write report.html, report.md, audit.json and the figures into DIR"
                             " (--out alone: reports/<outcome>/)")
@@ -312,15 +316,21 @@ def _check(args) -> int:
         folder = Path(args.out) if args.out else Path("reports") / folder_name(result.outcome)
         files = write_report(result, folder)
         print(f"report written to {files.html}", file=sys.stderr)
-    if args.json == "-":
-        sys.stdout.write(document)
-        if not args.quiet:
-            sys.stderr.write(terminal_summary(result))
-    else:
-        if args.json:
-            _write_text(Path(args.json), document)
-        if not args.quiet:
-            sys.stdout.write(terminal_summary(result))
+    table = None
+    if args.table:
+        from auditor.tidy import effect_rows, table_csv
+
+        table = table_csv(effect_rows(result))
+        if args.table != "-":
+            _write_text(Path(args.table), table)
+    if args.json and args.json != "-":
+        _write_text(Path(args.json), document)
+    for text in (document if args.json == "-" else None, table if args.table == "-" else None):
+        if text is not None:
+            sys.stdout.write(text)
+    if not args.quiet:
+        stdout_taken = "-" in (args.json, args.table)
+        (sys.stderr if stdout_taken else sys.stdout).write(terminal_summary(result))
     return EXIT_OK
 
 
@@ -329,7 +339,10 @@ def _refuse_overwriting_the_data(args) -> None:
     from auditor.errors import AuditError
 
     data = Path(args.file)
-    targets = [Path(args.json)] if args.json not in (None, "-") else []
+    if args.json == "-" and args.table == "-":
+        raise AuditError("--json - and --table - both ask for standard output; send one of them"
+                         " to a file")
+    targets = [Path(p) for p in (args.json, args.table) if p not in (None, "-")]
     if args.out:
         targets.append(Path(args.out))
     for target in targets:

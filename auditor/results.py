@@ -350,6 +350,17 @@ class AuditResult(_Plain):
 
         return summary_html(self)
 
+    def to_frame(self):
+        """The effect sizes as a pandas DataFrame, one row per index and comparison (columns
+        `tidy.TABLE_FIELDS`: design, outcome, comparison, index, family, role, estimate, the
+        quoted interval with its method and level, the bootstrap interval, the no-effect value,
+        the magnitude label and the reason an index is undefined)."""
+        import pandas as pd
+
+        from auditor.tidy import TABLE_FIELDS, effect_rows
+
+        return pd.DataFrame(effect_rows(self), columns=list(TABLE_FIELDS))
+
     def effect(self, name: str) -> Effect:
         for e in self.effects:
             if e.name == name:
