@@ -31,6 +31,21 @@ class _UsageError(Exception):
     pass
 
 
+def _design_overrides(parser) -> None:
+    """The design guard's overrides (auditor.guard), on `check` and `screen`."""
+    parser.add_argument("--independent-rows", action="store_true",
+                        help="the rows are independent observations although an id column"
+                             " repeats (the design check stops otherwise)")
+    parser.add_argument("--one-factor", action="store_true",
+                        help="compare the levels of --group pooled over a second factor crossed"
+                             " with it (factorial or mixed design; the check stops otherwise)")
+
+
+def _overrides(args) -> tuple[str, ...]:
+    return tuple(name for name, flag in (("independent_rows", args.independent_rows),
+                                         ("one_factor", args.one_factor)) if flag)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog="auditor",
@@ -98,6 +113,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="estimate how often the primary index's interval covers its true"
                             " value in populations shaped like these data (smoothed bootstrap;"
                             " a few seconds; default: the policy's intervals.coverage_check)")
+    _design_overrides(check)
     check.add_argument("--quiet", action="store_true", help="do not print the summary")
     check.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                        help="show the full traceback if an internal error occurs")
@@ -193,6 +209,7 @@ def build_parser() -> argparse.ArgumentParser:
                           " reports/screen)")
     scr.add_argument("--reports", action="store_true",
                      help="also write a full report per outcome, linked from screen.html")
+    _design_overrides(scr)
     scr.add_argument("--quiet", action="store_true", help="no progress and no summary")
     scr.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                      help="show the full traceback if an internal error occurs")
@@ -307,7 +324,7 @@ def _check(args) -> int:
             subject=args.subject, paired_columns=args.paired,
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
-            coverage_check=args.coverage_check, margins=margins,
+            coverage_check=args.coverage_check, margins=margins, overrides=_overrides(args),
         )
     document = to_json(result)
     if args.out is not None:
@@ -383,7 +400,7 @@ def _screen(args) -> int:
     settings = dict(policy=args.policy, seed=args.seed, resamples=args.boot, level=args.level,
                     jobs=args.jobs, out=Path(args.out), sort=args.sort, reports=args.reports,
                     progress=progress, margins=margins, engine=args.engine,
-                    scheduler=args.scheduler)
+                    scheduler=args.scheduler, overrides=_overrides(args))
     single = (not args.manifest and len(args.file) == 1 and Path(args.file[0]).is_file())
     if single:
         files, skipped = run_screen(args.file[0], group=args.group, **options, **settings)

@@ -19,6 +19,8 @@ from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
                              paired_effects, two_group_effects)
 from auditor.errors import DesignError, UndefinedEffectWarning
+from auditor.guard import (OVERRIDES, check_independent, check_repeated,
+                           columns_to_look_at)
 from auditor.influence import Units, influence_table, with_fragility
 from auditor.load import Table, column_position, read_table
 from auditor.margins import equivalence_records, margins_for
@@ -66,7 +68,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
           seed: int | None = None, reference: str | None = None,
           progress: Progress = None, policy=None, scope: str = "full",
           coverage_check: bool | None = None,
-          margins: dict[str, float] | None = None) -> AuditResult:
+          margins: dict[str, float] | None = None, overrides=()) -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -92,6 +94,14 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     the question of size: two one-sided tests and a verdict per index with a margin
     (`with_equivalence`, in the full and the screen scope).
 
+    Before any statistic, the design guard (`guard.py`) looks at the file's other columns and
+    stops, with one line saying what to run instead, on a design the audit does not cover
+    (repeated rows of one participant in independent groups, a second factor crossed with the
+    groups, a between-participant factor crossed with repeated conditions, a long file where no
+    participant has two rows). `overrides` ("independent_rows", "one_factor") lets a stated
+    design on where the audit can still be read; the result's warnings record it. A `Table`
+    passed in (a screen's batch) is not guarded again: the screen guards each file once.
+
     `coverage_check` (default: the policy's `intervals.coverage_check`) adds the estimated
     coverage of the primary index's quoted interval on populations shaped like the data
     (`with_coverage_check`); a screen never runs it.
@@ -116,12 +126,18 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                           " condition columns of a wide file (--paired BEFORE,AFTER)")
     else:
         columns = [outcome, group] + ([subject] if subject else [])
+    overrides = check_overrides(overrides)
+    guarded = not isinstance(data, Table)
     if isinstance(data, Table):  # already read (the screen reads a batch of columns at a time)
         table = data
     elif isinstance(data, (str, os.PathLike)):
         table = read_table(data, columns)
+        others = columns_to_look_at(table.header, columns)
+        if others:  # the design guard looks at the other columns too
+            table = read_table(data, columns + others)
     else:
-        table = table_from_frame(data, columns)
+        header = tuple(str(c) for c in data.columns)
+        table = table_from_frame(data, columns + columns_to_look_at(header, columns))
     settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
                     policy=policy, scope=scope)
     if reference is not None and (wide is not None or subject is not None):
@@ -129,16 +145,24 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                           " group whose SD scales Glass's delta)")
     coverage = (policy.value("intervals", "coverage_check") if coverage_check is None
                 else bool(coverage_check)) and scope == "full"
+    notes: tuple[str, ...] = ()
     if wide is not None:
         design = wide_repeated(table, list(wide), subject)
+        if guarded:
+            notes = check_repeated(table, None, subject, columns, overrides=overrides)
         check_margin_names(margins, design)
         result = _audit_repeated(design, outcome or design.outcome, **settings)
     elif subject is not None:
+        if guarded:
+            notes = check_repeated(table, group, subject, columns, chosen, overrides)
         design = long_repeated(table, outcome, group, subject, chosen)
         check_margin_names(margins, design)
         result = _audit_repeated(design, outcome, **settings)
     else:
         design = independent_groups(table, outcome, group, chosen)
+        if guarded:
+            notes = check_independent(table, [outcome, group], group, list(design.labels),
+                                      overrides)
         check_margin_names(margins, design)
         if len(design.labels) == 2:
             result = _audit_two_groups(design, reference, **settings)
@@ -146,10 +170,21 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
             raise DesignError("--reference applies to two independent groups only")
         else:
             result = _audit_k_groups(design, **settings)
+    if notes:
+        result = dataclasses.replace(result, warnings=tuple(result.warnings) + notes)
     result = with_equivalence(result, policy, margins or {})
     if result.design == "two_independent":
         result = dataclasses.replace(result, conversions=scale_conversions(result))
     return with_coverage_check(result, policy) if coverage else result
+
+
+def check_overrides(given) -> frozenset:
+    """The design guard's overrides (`guard.OVERRIDES`), checked by name."""
+    chosen = frozenset(given or ())
+    unknown = sorted(chosen - set(OVERRIDES))
+    if unknown:
+        raise DesignError(f"override '{unknown[0]}': use one of {', '.join(sorted(OVERRIDES))}")
+    return chosen
 
 
 def check_margin_names(given, design: Groups | Repeated) -> None:

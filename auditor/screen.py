@@ -467,6 +467,7 @@ class _Plan:
     skipped: list  # (column, reason), known before any outcome is audited
     parts: list[list[str]]  # the batches of columns
     tables: list  # per batch: its own table, or None when the workers read the file
+    notes: tuple[str, ...] = ()  # the design guard's notes of the overrides given
 
 
 def _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler):
@@ -538,6 +539,7 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
         _choose_levels(_levels([x.strip() for x in first.columns[group]]),
                        list(groups) if groups else None, name, group, "--groups")
     looked_at, skipped = candidate_columns(header, group, subject, outcomes, exclude)
+    notes = _guard(data, first, fixed, group, groups, subject, common["overrides"])
     folder = common["report_folder"]
     names = None
     if folder is not None:
@@ -548,7 +550,30 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
                common["margins"])
     parts = batches(looked_at, first.n_rows, split_for)
     tables = [None if table is None else _part(table, fixed, names_) for names_ in parts]
-    return _Plan(label, job, wanted, frozenset(exclude or ()), looked_at, skipped, parts, tables)
+    return _Plan(label, job, wanted, frozenset(exclude or ()), looked_at, skipped, parts, tables,
+                 notes)
+
+
+def _guard(data, first: Table, fixed: list[str], group: str, groups, subject,
+           overrides) -> tuple[str, ...]:
+    """The design guard (`guard.py`) of one source, once, on its columns beside the grouping and
+    the subject: a DesignError naming the file, or the override notes."""
+    from auditor.design import _choose_levels, _levels
+    from auditor.guard import check_independent, check_repeated, columns_to_look_at
+    from auditor.pipeline import table_from_frame
+
+    named = list(fixed)  # the outcomes are looked at too: a text column among them is no outcome
+    others = columns_to_look_at(first.header, named)
+    if isinstance(data, (str, os.PathLike)):
+        table = read_table(data, fixed + others) if others else first
+    else:
+        table = table_from_frame(data, fixed + others)
+    if subject is not None:
+        return check_repeated(table, group, subject, named,
+                              list(groups) if groups else None, overrides)
+    levels = _choose_levels(_levels([x.strip() for x in table.columns[group]]),
+                            list(groups) if groups else None, table.path, group, "--groups")
+    return check_independent(table, named, group, levels, overrides)
 
 
 def run_screen(data, *, group: str, groups=None, subject: str | None = None, outcomes=None,
@@ -557,7 +582,7 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
                sort: str = "column", reports: bool = False,
                progress: Callable[[int, int, str], None] | None = None,
                margins: dict[str, float] | None = None, engine: str = "local",
-               scheduler: str | None = None):
+               scheduler: str | None = None, overrides=()):
     """Screen every outcome of one data file or data frame; write screen.csv, screen.json and
     screen.html into `out` when given. Returns (rows as a list of dicts in the chosen order,
     skipped columns as (column, reason)) without `out`, else (ScreenFiles, skipped). `engine`
@@ -566,7 +591,7 @@ def run_screen(data, *, group: str, groups=None, subject: str | None = None, out
     engine gives the same rows. `run_screens` screens many files into one table."""
     policy, seed = _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler)
     _refuse_writing_over([data], out)
-    common = _common(policy, seed, resamples, level, margins, reports, out)
+    common = _common(policy, seed, resamples, level, margins, reports, out, overrides)
     plan = _plan(data, None, group=group, groups=groups, subject=subject, outcomes=outcomes,
                  exclude=exclude, common=common, split_for=jobs)
     return _execute([plan], policy=policy, seed=seed, jobs=jobs, out=out, sort=sort,
@@ -578,7 +603,7 @@ def run_screens(sources: list[Source], *, policy=None, seed: int | None = None, 
                 sort: str = "column", reports: bool = False,
                 progress: Callable[[int, int, str], None] | None = None,
                 margins: dict[str, float] | None = None, engine: str = "local",
-                scheduler: str | None = None):
+                scheduler: str | None = None, overrides=()):
     """Screen many data files (`sources.Source`s, from `sources.sources_from_paths` or
     `sources.read_manifest`)
     into one table: every row carries its file, and the Holm and Benjamini-Hochberg adjustments
@@ -591,7 +616,7 @@ def run_screens(sources: list[Source], *, policy=None, seed: int | None = None, 
         raise DesignError("no data file to screen: name files, a folder, a pattern or --manifest")
     policy, seed = _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler)
     _refuse_writing_over([s.path for s in sources], out)
-    common = _common(policy, seed, resamples, level, margins, reports, out)
+    common = _common(policy, seed, resamples, level, margins, reports, out, overrides)
     seen: dict[str, str] = {}
     for source in sources:
         key = os.path.normcase(os.path.realpath(source.path))
@@ -622,7 +647,9 @@ def _refuse_writing_over(paths, out) -> None:
                                   " choose another --out")
 
 
-def _common(policy, seed, resamples, level, margins, reports, out) -> dict:
+def _common(policy, seed, resamples, level, margins, reports, out, overrides=()) -> dict:
+    from auditor.pipeline import check_overrides
+
     report_folder = None
     if reports:
         if out is None:
@@ -630,7 +657,8 @@ def _common(policy, seed, resamples, level, margins, reports, out) -> dict:
         report_folder = str(Path(out) / "reports")
     return {"policy": policy, "seed": seed, "resamples": resamples, "level": level,
             "margins": _check_margins(margins), "report_folder": report_folder,
-            "report_taken": set()}  # report folder names given so far, across the files
+            "report_taken": set(),  # report folder names given so far, across the files
+            "overrides": check_overrides(overrides)}
 
 
 def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, engine, scheduler):
@@ -717,8 +745,9 @@ def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, eng
 
         if out is None:
             return list(ordered_rows()), listed
+        notes = [note for plan in plans for note in plan.notes]
         files = _write_outputs(Path(out), ordered_rows, listed, policy, seed, sort,
-                               [p.label for p in plans] if many else None)
+                               [p.label for p in plans] if many else None, notes)
         return files, listed
     finally:
         if cluster is not None:
@@ -761,7 +790,7 @@ MANY_FIELDS = ("file",) + FIELDS + ("p_holm_file", "p_bh_file")  # a screen of m
 
 
 def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort,
-                   labels: list[str] | None = None) -> ScreenFiles:
+                   labels: list[str] | None = None, notes=()) -> ScreenFiles:
     """Write screen.csv, screen.json and screen.html from the rows; `labels` (the files, in a
     screen of many) adds the file column and the within-file adjustments."""
     paths = out / "screen.csv", out / "screen.json", out / "screen.html"
@@ -784,8 +813,9 @@ def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort,
                          + json.dumps(seed) + ',\n  "sorted_by": ' + json.dumps(sort)
                          + ',\n  "note": ' + json.dumps(MULTIPLE_OUTCOMES_NOTE) + files_doc
                          + ',\n  "skipped": ' + json.dumps(skipped_doc)
+                         + (',\n  "design_notes": ' + json.dumps(list(notes)) if notes else "")
                          + ',\n  "rows": [')
-            f_html.write(_html_head(policy, seed, skipped, labels))
+            f_html.write(_html_head(policy, seed, skipped, labels, notes))
             for row in ordered_rows():
                 row = {k: _clean(v) for k, v in row.items()}
                 writer.writerow(["" if row.get(f) is None else row.get(f) for f in fields])
@@ -822,7 +852,7 @@ _MANY_COLUMNS = ((("file", "file"),) + _HTML_COLUMNS
                  + (("p_holm_file", "p (Holm, file)"), ("p_bh_file", "p (BH, file)")))
 
 
-def _html_head(policy, seed, skipped, labels=None) -> str:
+def _html_head(policy, seed, skipped, labels=None, notes=()) -> str:
     e = html.escape
     many = labels is not None
     skipped_html = "".join(
@@ -841,6 +871,7 @@ def _html_head(policy, seed, skipped, labels=None) -> str:
             f" (SHA-256 {e(policy.sha256[:16])}), seed {e(str(seed))}. Click a column heading to"
             f" sort.{e(adjusted)}</p>"
             f"<p class=\"note\">{e(MULTIPLE_OUTCOMES_NOTE)}</p>"
+            + "".join(f"<p class=\"note\">{e(note)}</p>" for note in notes)
             + (f"<p>Skipped columns:</p><ul>{skipped_html}</ul>" if skipped else "")
             + f"<table id=\"screen\"><thead><tr>{head}</tr></thead><tbody>\n")
 
