@@ -557,17 +557,22 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
 def _guard(data, first: Table, fixed: list[str], group: str, groups, subject,
            overrides) -> tuple[str, ...]:
     """The design guard (`guard.py`) of one source, once, on its columns beside the grouping and
-    the subject: a DesignError naming the file, or the override notes."""
+    the subject (only the id-named ones when the others would hold more cells than a batch): a
+    DesignError naming the file, or the override notes."""
     from auditor.design import _choose_levels, _levels
-    from auditor.guard import check_independent, check_repeated, columns_to_look_at
+    from auditor.guard import check_independent, check_repeated, columns_to_look_at, is_id_name
     from auditor.pipeline import table_from_frame
 
     named = list(fixed)  # the outcomes are looked at too: a text column among them is no outcome
     others = columns_to_look_at(first.header, named)
-    if isinstance(data, (str, os.PathLike)):
-        table = read_table(data, fixed + others) if others else first
-    else:
+    if len(others) * first.n_rows > BATCH_CELLS:  # no more than a batch's cells: the id columns
+        others = [c for c in others if is_id_name(c)]
+    if not isinstance(data, (str, os.PathLike)):
         table = table_from_frame(data, fixed + others)
+    elif all(c in first.columns for c in others):  # a workbook, read whole already
+        table = first
+    else:  # one read of a text file for the check, of at most a batch's cells
+        table = read_table(data, fixed + others) if others else first
     if subject is not None:
         return check_repeated(table, group, subject, named,
                               list(groups) if groups else None, overrides)

@@ -786,9 +786,11 @@ def test_small_batches_give_the_rows_and_skips_of_one_batch(run_cli, write_file,
         (tmp_path / "twos" / "screen.json").read_bytes()
     skipped = _document(tmp_path / "twos", strict_json)["skipped"]
     assert [(s["column"], s["reason"][:11]) for s in skipped] == [("words", "not numeric")]
-    # the file is read for the grouping first, then for two outcome columns at a time
-    assert asked[0] == ["g"] and all(len(a) <= 3 and a[0] == "g" for a in asked[1:])
-    assert [n for a in asked[1:] for n in a[1:]] == list(columns)
+    # the file is read for the grouping first, once for the design check (every other column:
+    # they hold fewer cells than a batch), then for two outcome columns at a time
+    assert asked[0] == ["g"] and asked[1] == ["g", *columns]
+    assert all(len(a) <= 3 and a[0] == "g" for a in asked[2:])
+    assert [n for a in asked[2:] for n in a[1:]] == list(columns)
 
 
 def test_a_file_that_changes_during_the_screen_stops_it_with_one_line(run_cli, write_file,
@@ -921,3 +923,23 @@ def test_the_screen_scope_matches_the_full_audit_in_harder_cases(case):
         assert lean.decision.notes and "undefined" in lean.decision.notes[0]
     if case == "many_cases":
         assert lean.decision.branch == full.decision.branch
+
+
+def test_the_design_check_of_a_large_file_reads_only_its_id_columns(run_cli, write_file,
+                                                                   tmp_path, monkeypatch):
+    import auditor.screen as screen_module
+
+    columns = dict(SORT_COLUMNS)
+    columns["participant_id"] = lambda k, i, rng: f"{'AB'[k]}{i}"
+    path = write_file("wide.csv", _csv_text(*_two_groups(columns)))
+    asked = []
+    real_read = screen_module.read_table
+
+    def recording_read(source, names):
+        asked.append(list(names))
+        return real_read(source, names)
+
+    monkeypatch.setattr(screen_module, "BATCH_CELLS", 100)  # the other columns hold more
+    monkeypatch.setattr(screen_module, "read_table", recording_read)
+    _screen(run_cli, path, tmp_path / "out")
+    assert asked[1] == ["g", "participant_id"]  # the design check's one read

@@ -34,6 +34,7 @@ import statsmodels.datasets as sm_datasets
 from scipy import stats
 from statsmodels.stats.proportion import proportion_confint
 
+from auditor.errors import DesignError
 from auditor import diagnostics, paired, resampling
 from auditor.pipeline import audit
 from tests.references.common import quiet_pingouin as _quiet_pingouin
@@ -637,11 +638,18 @@ def test_audit_end_to_end_paired_wide():
 def test_audit_end_to_end_paired_long_and_direction():
     # pingouin mixed_anova in long format: August vs January by Subject; June rows are not
     # selected. Swapping the conditions negates the signed effects and maps PS_dep to 1 - PS_dep.
+    # The data set is a mixed design (Group, between participants, crossed with Time): the
+    # design guard stops it unless the pooled comparison is stated (`one_factor`).
     frame = pg.read_dataset("mixed_anova")
+    with pytest.raises(DesignError, match="'Group' .* mixed design"):
+        audit(frame, outcome="Scores", group="Time", subject="Subject",
+              groups=["August", "January"], resamples=200, seed=5)
     forward = audit(frame, outcome="Scores", group="Time", subject="Subject",
-                    groups=["August", "January"], resamples=200, seed=5)
+                    groups=["August", "January"], resamples=200, seed=5, overrides=["one_factor"])
     backward = audit(frame, outcome="Scores", group="Time", subject="Subject",
-                     groups=["January", "August"], resamples=200, seed=5)
+                     groups=["January", "August"], resamples=200, seed=5,
+                     overrides=["one_factor"])
+    assert any("--one-factor" in w and "'Group'" in w for w in forward.warnings)
     acc = forward.data
     assert forward.design == "paired"
     assert acc.not_selected == {"June": 60}  # pandas value_counts of Time
