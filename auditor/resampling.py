@@ -40,6 +40,24 @@ def counts_from_indices(idx: np.ndarray) -> np.ndarray:
     return np.bincount(flat, minlength=m * n).reshape(m, n).astype(float)
 
 
+def counts_over_indices(idx: np.ndarray) -> np.ndarray:
+    """`counts_from_indices`, written into the memory of `idx`, which it consumes: a C-ordered
+    (m, n) array of 64-bit integers (as `Generator.integers` draws them) is offset in place
+    (unit j of resample r becomes r n + j), counted once (`np.bincount`), and the float counts
+    overwrite it. A resample chunk then takes two arrays of its size per stratum instead of four;
+    each fresh array of that size is memory the system must map and zero again. Other arrays
+    are left alone and counted by `counts_from_indices`."""
+    if not (idx.dtype == np.int64 and idx.ndim == 2 and idx.flags.c_contiguous
+            and idx.flags.writeable and idx.flags.owndata):
+        return counts_from_indices(idx)
+    m, n = idx.shape
+    idx += (np.arange(m, dtype=np.int64) * n)[:, None]
+    drawn = np.bincount(idx.ravel(), minlength=m * n).reshape(m, n)
+    counts = idx.view(np.float64)
+    counts[...] = drawn
+    return counts
+
+
 def resample_units(statistics: Mapping[str, Statistic], samples: Sequence[np.ndarray],
                    resamples: int, rng: np.random.Generator,
                    progress: Callable[[int, int], None] | None = None,
@@ -69,7 +87,7 @@ def resample_units(statistics: Mapping[str, Statistic], samples: Sequence[np.nda
                 for name, fn in statistics.items():
                     out[name][done:done + m] = fn(*stacked)
             if count_statistics:
-                counts = [counts_from_indices(i) for i in indices]
+                counts = [counts_over_indices(i) for i in indices]  # the indices are spent
                 for name, fn in count_statistics.items():
                     out[name][done:done + m] = fn(*counts)
         done += m

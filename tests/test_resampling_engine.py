@@ -42,6 +42,41 @@ def test_counts_from_indices_counts_every_draw():
     np.testing.assert_array_equal(resampling.counts_from_indices(idx), [[2, 0, 1], [0, 1, 2]])
 
 
+@pytest.mark.parametrize("m,n", [(1, 1), (1, 5), (6, 1), (37, 13), (500, 200)])
+def test_counts_written_over_the_indices_equal_counts_from_indices(m, n):
+    rng = np.random.default_rng(m * 1000 + n)
+    idx = rng.integers(0, n, (m, n))
+    want = resampling.counts_from_indices(idx)
+    got = resampling.counts_over_indices(idx.copy())
+    assert got.dtype == np.float64 and got.shape == (m, n)
+    np.testing.assert_array_equal(got, want)
+    assert np.all(got.sum(axis=1) == n)
+    # arrays it cannot reuse (other integer widths, views) are counted into new memory
+    for other in (idx.astype(np.int32), idx[:, ::-1], idx[::-1]):
+        kept = other.copy()
+        np.testing.assert_array_equal(resampling.counts_over_indices(other),
+                                      resampling.counts_from_indices(kept))
+        np.testing.assert_array_equal(other, kept)
+
+
+@pytest.mark.parametrize("block", [1, 7, 64, 10**6])
+@pytest.mark.parametrize("a,b", list(_data()))
+def test_superiority_counts_are_exact_whatever_the_blocking(a, b, block):
+    """U of each resample, counted pair by pair on the expanded resample, equals the count
+    statistic exactly (no rounding), however many resamples a block holds."""
+    rng = np.random.default_rng(31)
+    m = 23
+    ca = resampling.counts_from_indices(rng.integers(0, a.size, (m, a.size)))
+    cb = resampling.counts_from_indices(rng.integers(0, b.size, (m, b.size)))
+    with mock.patch.object(ranks, "BLOCK_VALUES", block):
+        got = ranks.superiority_by_counts(a, b)[0](ca, cb)
+    want = []
+    for i in range(m):
+        x, y = np.repeat(a, ca[i].astype(int)), np.repeat(b, cb[i].astype(int))
+        want.append(np.sum(x[:, None] > y[None, :]) + 0.5 * np.sum(x[:, None] == y[None, :]))
+    np.testing.assert_array_equal(got, want)
+
+
 def test_chunking_keeps_the_random_stream_per_chunk_size():
     # smaller chunks interleave the draws of A and B differently, so the replicates change;
     # with the chunk equal to scipy's batch the replicates equal scipy's (scipy.stats.bootstrap)
