@@ -36,8 +36,11 @@ def midranks(x: np.ndarray) -> np.ndarray:
     """Mid-ranks (ties get the average rank) along the last axis, as scipy.stats.rankdata gives
     them. A one-dimensional array without NaN is ranked here directly (one stable sort; a tie
     block ending at sorted position e with t members gets e - (t - 1)/2), which avoids scipy's
-    per-call overhead on the many small rankings of influence searches."""
+    per-call overhead on the many small rankings of influence searches. So is an array holding a
+    single row (shape (1, n), as the fragility search passes its reduced samples)."""
     x = np.asarray(x)
+    if x.ndim > 1 and x.size and x.size == x.shape[-1]:
+        return midranks(x.reshape(-1)).reshape(x.shape)
     if x.ndim != 1 or x.size == 0:
         return stats.rankdata(x, axis=-1)
     order = np.argsort(x, kind="stable")

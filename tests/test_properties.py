@@ -449,3 +449,15 @@ def test_midranks_of_arrays_with_nan_or_more_axes_are_scipy_s():
     assert np.array_equal(ranks.midranks(with_nan), stats.rankdata(with_nan), equal_nan=True)
     grid = np.array([[3.0, 1.0, 3.0], [0.0, 0.0, 5.0]])
     assert np.array_equal(ranks.midranks(grid), stats.rankdata(grid, axis=-1))
+
+
+@pytest.mark.parametrize("row", [[4.0], [2.0, 2.0], [3.0, 1.0, 3.0, -0.0, 0.0, 7.5, 1.0],
+                                 [2.0, np.nan, 1.0], [np.inf, -np.inf, 5.0, np.inf]])
+@pytest.mark.parametrize("shape", [(1, -1), (1, 1, -1)])
+def test_midranks_of_a_single_row_are_scipy_s(row, shape):
+    from scipy import stats
+
+    x = np.asarray(row).reshape(shape)
+    ours = ranks.midranks(x)
+    assert ours.shape == x.shape
+    assert np.array_equal(ours, stats.rankdata(x, axis=-1), equal_nan=True)
