@@ -316,18 +316,42 @@ def _lower_end(a_hat: float, variance, half_var: float, c: float) -> float:
     return optimize.brentq(gap, EDGE, top, xtol=_XTOL)
 
 
-def _score_parts(a: np.ndarray, b: np.ndarray) -> tuple[float, float, float] | None:
+def _pooled_ranks(a: np.ndarray, b: np.ndarray) -> tuple[float, np.ndarray]:
+    """(A-hat, sizes of the pooled sample's tie blocks in increasing order of value) from one
+    stable sort of the finite pooled sample, for non-empty groups.
+
+    A tie block of t values starting at sorted position s (0-based) has mid-rank s + (t + 1)/2;
+    A-hat = (R_A - n_A (n_A + 1)/2) / (n_A n_B), R_A the sum of A's mid-ranks (Mann & Whitney
+    1947), which `ranks.prob_superiority_values` gives. The ranks are multiples of 1/2, so R_A
+    is exact in any order of summation. The block sizes are those `np.unique(pooled,
+    return_counts=True)` gives (-0.0 and 0.0 are one value)."""
+    na, nb = a.size, b.size
+    pooled = np.concatenate([a, b])
+    order = np.argsort(pooled, kind="stable")
+    ordered = pooled[order]
+    new = np.empty(ordered.size, dtype=bool)
+    new[0] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=new[1:])
+    starts = np.flatnonzero(new)
+    sizes = np.diff(np.append(starts, ordered.size))
+    rank_of_block = starts + (sizes + 1) / 2.0
+    rank_sum = float(np.sum(np.repeat(rank_of_block, sizes)[order < na]))
+    return (rank_sum - na * (na + 1) / 2) / (na * nb), sizes
+
+
+def _score_parts(a: np.ndarray, b: np.ndarray, pooled_ranks=None
+                 ) -> tuple[float, float, float] | None:
     """(A-hat, rho, rho V(1/2)) of the score interval (`superiority_score_interval`), or None
-    when a group is empty or every pooled value is tied (no interval)."""
+    when a group is empty or every pooled value is tied (no interval). `pooled_ranks`: the
+    samples' `_pooled_ranks`, when the caller has them."""
     if a.size == 0 or b.size == 0:
         return None
-    pooled = np.concatenate([a, b])
-    if np.all(pooled == pooled[0]):
+    a_hat, t = _pooled_ranks(a, b) if pooled_ranks is None else pooled_ranks
+    if t.size == 1:
         return None
     na, nb = a.size, b.size
     mn = float(na) * nb
-    a_hat = float(ranks.prob_superiority_values(a, b))
-    t = np.unique(pooled, return_counts=True)[1].astype(float)  # sizes of the tie blocks
+    t = t.astype(float)  # sizes of the tie blocks
     tie_term = float(np.sum(t**3 - t))
     var_u = float(ranks.mann_whitney_variance(na, nb, tie_term))
     rho = var_u / (mn * (na + nb + 1) / 12.0)
@@ -340,17 +364,17 @@ def _beyond_half(a_hat: float, half_var: float, c: float) -> bool:
     return a_hat > 0.5 and (a_hat - 0.5) - c * math.sqrt(half_var) > 0.0
 
 
-def score_interval_holds_half(a, b, level: float, *, critical: float | None = None
-                              ) -> bool | None:
+def score_interval_holds_half(a, b, level: float, *, critical: float | None = None,
+                              pooled_ranks=None) -> bool | None:
     """Whether `superiority_score_interval(a, b, level, critical=critical)` contains 1/2, found
     without its ends: the interval is the set of phi the score test does not reject, split at
     1/2 by the test there (`_lower_end`), so it holds 1/2 exactly when neither end is pushed past
     1/2 by that test, i.e. when |A-hat - 1/2| <= c sqrt(rho V(1/2)) (the tie-corrected
     Mann-Whitney z test without continuity correction does not reject). None when there is no
     interval. One rank pass instead of two root searches over quadratures: the fragility search
-    and the per-case recheck ask only this."""
+    and the per-case recheck ask only this. `pooled_ranks`: see `_score_parts`."""
     a, b, level, c = _check_interval_arguments(a, b, level, critical)
-    parts = _score_parts(a, b)
+    parts = _score_parts(a, b, pooled_ranks)
     if parts is None:
         return None
     a_hat, _, half_var = parts
@@ -465,12 +489,15 @@ def mann_whitney_is_exact(n_a: int, n_b: int, untied: bool) -> bool:
     return untied and n_a * n_b <= ranks.EXACT_MAX_PAIRS
 
 
-def _matched_critical(a: np.ndarray, b: np.ndarray, level: float) -> float | None:
+def _matched_critical(a: np.ndarray, b: np.ndarray, level: float,
+                      untied: bool | None = None) -> float | None:
     """The critical value of the Mann-Whitney test the tool reports on these groups: the exact
     test's (`exact_critical_value`) when that test is exact, None (the normal quantile)
-    otherwise."""
-    pooled = np.concatenate([a, b])
-    if mann_whitney_is_exact(a.size, b.size, np.unique(pooled).size == pooled.size):
+    otherwise. `untied`: whether no pooled value is tied, when the caller knows."""
+    if untied is None:
+        pooled = np.concatenate([a, b])
+        untied = np.unique(pooled).size == pooled.size
+    if mann_whitney_is_exact(a.size, b.size, untied):
         return exact_critical_value(a.size, b.size, level)
     return None
 
@@ -486,10 +513,15 @@ def matched_interval(a: np.ndarray, b: np.ndarray, level: float) -> Interval | N
 
 def matched_holds_half(a: np.ndarray, b: np.ndarray, level: float) -> bool | None:
     """Whether `matched_interval(a, b, level)` contains 1/2 (`score_interval_holds_half` with the
-    same critical value); None when there is no interval."""
+    same critical value); None when there is no interval. The pooled sample is sorted once, for
+    both the exactness of the test (no ties) and the score test's parts."""
     if a.size == 0 or b.size == 0:
         return None
-    return score_interval_holds_half(a, b, level, critical=_matched_critical(a, b, level))
+    checked_a, checked_b, _, _ = _check_interval_arguments(a, b, level, None)
+    pooled_ranks = _pooled_ranks(checked_a, checked_b)
+    critical = _matched_critical(a, b, level, untied=bool(np.all(pooled_ranks[1] == 1)))
+    return score_interval_holds_half(checked_a, checked_b, level, critical=critical,
+                                     pooled_ranks=pooled_ranks)
 
 
 def carried(interval: Interval | None, slope: float, at_half: float, bounds: tuple[float, float],
