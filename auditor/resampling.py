@@ -20,6 +20,7 @@ from scipy import special
 from auditor.results import Interval
 
 CHUNK_VALUES = 1_000_000
+COUNT_BLOCK_VALUES = 32_768  # indices counted at a time (`counts_over_indices`)
 Statistic = Callable[..., np.ndarray]
 
 
@@ -42,19 +43,24 @@ def counts_from_indices(idx: np.ndarray) -> np.ndarray:
 
 def counts_over_indices(idx: np.ndarray) -> np.ndarray:
     """`counts_from_indices`, written into the memory of `idx`, which it consumes: a C-ordered
-    (m, n) array of 64-bit integers (as `Generator.integers` draws them) is offset in place
-    (unit j of resample r becomes r n + j), counted once (`np.bincount`), and the float counts
-    overwrite it. A resample chunk then takes two arrays of its size per stratum instead of four;
-    each fresh array of that size is memory the system must map and zero again. Other arrays
-    are left alone and counted by `counts_from_indices`."""
+    (m, n) array of 64-bit integers (as `Generator.integers` draws them) is counted a block of
+    about COUNT_BLOCK_VALUES indices at a time (`np.bincount` of the block's rows, unit j of its
+    r-th row at r n + j), and each block's float counts overwrite the block's indices, which are
+    spent by then. No other array of the chunk's size is made: each fresh one is memory the
+    system must map and zero again, and the small blocks stay in cache. Other arrays are left
+    alone and counted by `counts_from_indices`."""
     if not (idx.dtype == np.int64 and idx.ndim == 2 and idx.flags.c_contiguous
             and idx.flags.writeable and idx.flags.owndata):
         return counts_from_indices(idx)
     m, n = idx.shape
-    idx += (np.arange(m, dtype=np.int64) * n)[:, None]
-    drawn = np.bincount(idx.ravel(), minlength=m * n).reshape(m, n)
     counts = idx.view(np.float64)
-    counts[...] = drawn
+    step = max(1, min(m, COUNT_BLOCK_VALUES // max(1, n)))
+    offsets = (np.arange(step, dtype=np.int64) * n)[:, None]
+    for start in range(0, m, step):
+        rows = slice(start, min(m, start + step))
+        k = rows.stop - start
+        drawn = np.bincount((idx[rows] + offsets[:k]).ravel(), minlength=k * n)
+        counts[rows] = drawn.reshape(k, n)
     return counts
 
 

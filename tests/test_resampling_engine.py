@@ -42,12 +42,14 @@ def test_counts_from_indices_counts_every_draw():
     np.testing.assert_array_equal(resampling.counts_from_indices(idx), [[2, 0, 1], [0, 1, 2]])
 
 
+@pytest.mark.parametrize("block", [1, 5, 13 * 4, 32_768])
 @pytest.mark.parametrize("m,n", [(1, 1), (1, 5), (6, 1), (37, 13), (500, 200)])
-def test_counts_written_over_the_indices_equal_counts_from_indices(m, n):
+def test_counts_written_over_the_indices_equal_counts_from_indices(m, n, block):
     rng = np.random.default_rng(m * 1000 + n)
     idx = rng.integers(0, n, (m, n))
     want = resampling.counts_from_indices(idx)
-    got = resampling.counts_over_indices(idx.copy())
+    with mock.patch.object(resampling, "COUNT_BLOCK_VALUES", block):
+        got = resampling.counts_over_indices(idx.copy())
     assert got.dtype == np.float64 and got.shape == (m, n)
     np.testing.assert_array_equal(got, want)
     assert np.all(got.sum(axis=1) == n)
