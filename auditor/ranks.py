@@ -276,9 +276,7 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     if na < 2 or nb < 2:
         return (float(np.mean(_placements_of(a, b))) / nb if na and nb else math.nan,
                 math.nan, math.nan)
-    pooled = midranks(np.concatenate([a, b]))
-    pa = pooled[:na] - midranks(a)
-    pb = pooled[na:] - midranks(b)
+    pa, pb = placements(a, b)
     a_hat = float(np.mean(pa) / nb)
     va = float(np.var(pa, ddof=1)) / (na * nb * nb)
     vb = float(np.var(pb, ddof=1)) / (nb * na * na)
@@ -286,6 +284,39 @@ def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     if not var > 0:
         return a_hat, var, math.nan
     return a_hat, var, satterthwaite_df(va, na, vb, nb)
+
+
+def placements(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Placements of each a_i among B and of each b_j among A, in the samples' order:
+    P_Ai = #(b < a_i) + #(b = a_i)/2 = R_Ai - R^(A)_Ai (pooled minus internal mid-rank), and
+    likewise P_Bj, from one stable sort of the pooled sample (finite values).
+
+    In sorted order the pooled values fall into tie blocks; a value in a block with t_B values
+    of B, after c_B values of B in earlier blocks, has placement c_B + t_B/2 among B (and
+    likewise among A). The placements are multiples of 1/2, exact in floating point. With NaN
+    present they are the mid-rank differences (NaN throughout, as scipy ranks NaN)."""
+    na = a.size
+    pooled = np.concatenate([a, b])
+    order = np.argsort(pooled, kind="stable")
+    ordered = pooled[order]
+    if ordered.dtype.kind == "f" and np.isnan(ordered[-1]):
+        ranked = midranks(pooled)
+        return ranked[:na] - midranks(a), ranked[na:] - midranks(b)
+    new = np.empty(ordered.size, dtype=bool)
+    new[0] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=new[1:])
+    block = np.cumsum(new) - 1
+    starts = np.flatnonzero(new)
+    from_b = order >= na
+    b_through = np.concatenate(([0], np.cumsum(from_b)))  # B values among the first k sorted
+    ends = np.append(starts[1:], ordered.size)
+    b_before, b_in = b_through[starts], b_through[ends] - b_through[starts]
+    a_before, a_in = starts - b_before, (ends - starts) - b_in
+    among_b = (b_before + 0.5 * b_in)[block]
+    among_a = (a_before + 0.5 * a_in)[block]
+    out = np.empty(ordered.size)
+    out[order] = np.where(from_b, among_a, among_b)
+    return out[:na], out[na:]
 
 
 def separation(a: np.ndarray, b: np.ndarray) -> str | None:

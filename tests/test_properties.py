@@ -451,6 +451,30 @@ def test_midranks_of_arrays_with_nan_or_more_axes_are_scipy_s():
     assert np.array_equal(ranks.midranks(grid), stats.rankdata(grid, axis=-1))
 
 
+@STEADY
+@given(st.lists(st.integers(-3, 3).map(float), min_size=1, max_size=30),
+       st.lists(st.one_of(st.integers(-3, 3).map(float), st.floats(-4, 4, width=16),
+                          st.sampled_from([-0.0, math.inf, -math.inf])), min_size=1, max_size=30))
+def test_placements_from_one_sort_are_the_mid_rank_differences(a, b):
+    """P_A = R_A - R^(A)_A, P_B = R_B - R^(B)_B exactly (Brunner & Munzel 2000), and each is a
+    count of the other group's values below plus half of those equal."""
+    a, b = np.asarray(a), np.asarray(b)
+    pooled = ranks.midranks(np.concatenate([a, b]))
+    pa, pb = ranks.placements(a, b)
+    assert np.array_equal(pa, pooled[:a.size] - ranks.midranks(a))
+    assert np.array_equal(pb, pooled[a.size:] - ranks.midranks(b))
+    assert np.array_equal(pa, [np.sum(b < x) + 0.5 * np.sum(b == x) for x in a])
+    assert np.array_equal(pb, [np.sum(a < y) + 0.5 * np.sum(a == y) for y in b])
+
+
+def test_placements_with_nan_are_the_mid_rank_differences():
+    a, b = np.array([1.0, np.nan, 2.0]), np.array([2.0, 0.5])
+    pooled = ranks.midranks(np.concatenate([a, b]))
+    pa, pb = ranks.placements(a, b)
+    assert np.array_equal(pa, pooled[:3] - ranks.midranks(a), equal_nan=True)
+    assert np.array_equal(pb, pooled[3:] - ranks.midranks(b), equal_nan=True)
+
+
 @pytest.mark.parametrize("row", [[4.0], [2.0, 2.0], [3.0, 1.0, 3.0, -0.0, 0.0, 7.5, 1.0],
                                  [2.0, np.nan, 1.0], [np.inf, -np.inf, 5.0, np.inf]])
 @pytest.mark.parametrize("shape", [(1, -1), (1, 1, -1)])
