@@ -73,6 +73,33 @@ def kurtosis_se(n: int) -> float:
 BRIEF_NOTE = "not computed in a screen (the policy's checks do not read it)"
 
 
+def shape_statistics(x: np.ndarray) -> tuple[float | None, float | None]:
+    """(G1, G2) of a one-dimensional sample of n >= 3 values (G2 None below n = 4; either None
+    when not finite): the bias-corrected skewness and excess kurtosis (Joanes & Gill 1998),
+        G1 = sqrt(n (n - 1)) / (n - 2) m3 / m2^(3/2),
+        G2 = [(n^2 - 1) m4 / m2^2 - 3 (n - 1)^2] / ((n - 2)(n - 3)),
+    m_k the central moments about the mean (divisor n). Undefined (None) when m2 <= (eps mean)^2,
+    a spread lost to rounding. The operations are those of scipy.stats.skew and
+    scipy.stats.kurtosis with bias=False, in the same order, so the values are the same; this
+    spares their array-API and NaN-policy wrappers, which cost more than the arithmetic."""
+    n = x.size
+    with np.errstate(all="ignore"):
+        mean = np.mean(x, keepdims=True)
+        centred = x - mean
+        squares = centred**2
+        m2 = np.mean(squares)
+        m3 = np.mean(squares * centred)
+        m4 = np.mean(squares**2)
+        if m2 <= (np.finfo(np.float64).eps * mean[0])**2:
+            return None, None
+        g1 = ((n - 1.0) * n)**0.5 / (n - 2.0) * m3 / m2**1.5
+        g2 = None
+        if n > 3:
+            g2 = (1.0 / (n - 2) / (n - 3) * ((n**2 - 1.0) * m4 / m2**2.0 - 3 * (n - 1)**2.0)
+                  + 3.0) - 3
+    return _finite(g1), None if g2 is None else _finite(g2)
+
+
 def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
     """Shapiro-Wilk (3 <= n <= 5000), D'Agostino-Pearson K2 (n >= 20), Anderson-Darling, G1, G2.
 
@@ -118,9 +145,7 @@ def normality(label: str, x: np.ndarray, brief: bool = False) -> Normality:
                 notes.append(f"Anderson-Darling p is below {anderson_darling.P_FLOOR:g}"
                              f" (A2* = {ad.modified:.4g}); the bound is reported")
         if n >= 3:
-            g1 = _finite(_quiet(stats.skew, shape_x, bias=False))
-        if n >= 4:
-            g2 = _finite(_quiet(stats.kurtosis, shape_x, bias=False))
+            g1, g2 = shape_statistics(shape_x)
     return Normality(
         label=label, n=n, shapiro_w=sw_w, shapiro_p=sw_p, dagostino_k2=k2, dagostino_p=k2_p,
         anderson_a2=a2, anderson_p=a2_p, anderson_p_method=a2_method, skewness=g1, skewness_se=_finite(skewness_se(n)),
@@ -146,6 +171,12 @@ def equal_spread_tests(*groups: np.ndarray):
     return tuple(out)
 
 
+def median_abs_deviation(x: np.ndarray) -> float:
+    """median(|x - median(x)|), unscaled: scipy.stats.median_abs_deviation's defaults, by the
+    same two medians, without its wrappers."""
+    return float(np.median(np.abs(x - np.median(x))))
+
+
 def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, brief: bool = False) -> Spread:
     """Compare the spread of two groups.
 
@@ -157,7 +188,7 @@ def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, brief: bool = 
     notes: list[str] = []
     sd = (float(sample_sd(a)), float(sample_sd(b)))
     iqr = (float(stats.iqr(a)), float(stats.iqr(b)))
-    mad = (float(stats.median_abs_deviation(a)), float(stats.median_abs_deviation(b)))
+    mad = (median_abs_deviation(a), median_abs_deviation(b))
     if min(sd) == 0:
         notes.append("a group has zero spread: tests of equal spread are undefined")
         lev = bf = fl = (None, None)

@@ -475,6 +475,29 @@ def test_placements_with_nan_are_the_mid_rank_differences():
     assert np.array_equal(pb, pooled[3:] - ranks.midranks(b), equal_nan=True)
 
 
+@STEADY
+@given(st.one_of(
+    st.lists(st.floats(-1e6, 1e6, allow_nan=False), min_size=3, max_size=60),
+    st.lists(st.integers(1, 3).map(float), min_size=3, max_size=60),
+    st.lists(st.floats(-1e-6, 1e-6).map(lambda v: 1e8 + v), min_size=3, max_size=20)))
+def test_shape_statistics_and_mad_are_scipy_s(values):
+    """G1, G2 and the MAD equal scipy.stats.skew / kurtosis (bias=False) and
+    median_abs_deviation exactly, None where scipy's are not finite."""
+    import warnings
+
+    from scipy import stats
+
+    from auditor import diagnostics
+
+    x = np.asarray(values)
+    with warnings.catch_warnings(), np.errstate(all="ignore"):
+        warnings.simplefilter("ignore")
+        g1, g2 = stats.skew(x, bias=False), stats.kurtosis(x, bias=False)
+    want = (diagnostics._finite(g1), diagnostics._finite(g2) if x.size >= 4 else None)
+    assert diagnostics.shape_statistics(x) == want
+    assert diagnostics.median_abs_deviation(x) == stats.median_abs_deviation(x)
+
+
 @pytest.mark.parametrize("row", [[4.0], [2.0, 2.0], [3.0, 1.0, 3.0, -0.0, 0.0, 7.5, 1.0],
                                  [2.0, np.nan, 1.0], [np.inf, -np.inf, 5.0, np.inf]])
 @pytest.mark.parametrize("shape", [(1, -1), (1, 1, -1)])
