@@ -389,6 +389,35 @@ def cohen_d(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
                                 "noncentral-t inversion failed numerically; normal approximation"))
 
 
+DECISIVE = 1e-6  # relative distance of |t| from the critical value that settles containment
+
+
+def noncentral_t_holds_zero(a: np.ndarray, b: np.ndarray, level: float,
+                            method: str) -> bool | None:
+    """Whether the noncentral-t interval of d (and of g = J d, a positive multiple) on these
+    groups contains 0, without its ends: P(T <= t | ncp) falls as ncp grows and is the central t
+    distribution at ncp = 0, so the lower limit is below 0 exactly when t < t_crit and the upper
+    one above 0 exactly when t > -t_crit, t_crit the (1 + level)/2 quantile of Student's t with
+    n_A + n_B - 2 df: the interval holds 0 exactly when Student's two-sided t test does not
+    reject. Answered only where that is decisive, |t| at least DECISIVE (relatively) away from
+    t_crit and within the range where the inversion uses scipy's distribution function
+    (NCT_LIBRARY_MAX_T); otherwise, for another `method` or undefined d, None (the caller
+    computes the interval)."""
+    if method != "noncentral_t":
+        return None
+    na, nb = a.size, b.size
+    with np.errstate(all="ignore"):
+        d = float(cohen_d_values(a, b))
+    df = na + nb - 2
+    if not (math.isfinite(d) and df >= 1 and 0.0 < level < 1.0):
+        return None
+    t = abs(d * math.sqrt(na * nb / (na + nb)))
+    critical = float(special.stdtrit(df, 0.5 + level / 2))
+    if t > NCT_LIBRARY_MAX_T or abs(t - critical) <= DECISIVE * max(1.0, critical):
+        return None
+    return t < critical
+
+
 def hedges_g(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     """Hedges' g = J d with the exact J; its interval is d's noncentral-t interval scaled by J."""
     d = cohen_d(a, b, level)

@@ -1069,24 +1069,34 @@ def _shortcut_cases():
     far[3] = 25.0
     yield "one extreme case", far + 0.45, rng.normal(0.0, 1.0, 120)
     yield "nearly separated", rng.normal(2.5, 1.0, 12), rng.normal(0.0, 1.0, 12)
+    yield "normal, a fragile d", np.round(rng.normal(0.45, 1.0, 80), 3), \
+        np.round(rng.normal(0.0, 1.0, 80), 3)
 
 
 @pytest.mark.parametrize("case, a, b", list(_shortcut_cases()))
 def test_the_containment_shortcut_leaves_every_influence_record_as_it_was(case, a, b,
                                                                          monkeypatch):
-    """The dominance indices answer "does the interval on the reduced data hold the no-effect
-    value?" from the test at 1/2 instead of recomputing the score interval's ends; the report's
-    influence section (interval flips, fragility counts and the cases removed) must be the one
-    the recomputation gives."""
+    """The dominance indices and d and g answer "does the interval on the reduced data hold the
+    no-effect value?" from the test at the no-effect value instead of recomputing the score or
+    noncentral-t interval's ends; the report's influence section (interval flips, fragility
+    counts and the cases removed) must be the one the recomputation gives, under the default
+    policy and under one that quotes every index's own interval (g is then primary on normal
+    data)."""
     import auditor.effects as effects
+    import auditor.parametric as parametric
+    from auditor.policy import default_text, parse_policy
 
     frame = pd.DataFrame({"g": ["A"] * a.size + ["B"] * b.size, "y": np.concatenate([a, b])})
-    kw = dict(outcome="y", group="g", resamples=200, seed=11)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        quick = audit(frame, **kw).to_dict()["influence"]
-        monkeypatch.setattr(effects, "dominance_holds_null", lambda name: None)
-        recomputed = audit(frame, **kw).to_dict()["influence"]
-    assert quick == recomputed
+    own = parse_policy(default_text().replace("\nmatch_test = true", "\nmatch_test = false"),
+                       "own intervals")
+    for policy in (None, own):
+        kw = dict(outcome="y", group="g", resamples=200, seed=11, policy=policy)
+        with warnings.catch_warnings(), monkeypatch.context() as patched:
+            warnings.simplefilter("ignore")
+            quick = audit(frame, **kw).to_dict()["influence"]
+            patched.setattr(effects, "dominance_holds_null", lambda name: None)
+            patched.setattr(parametric, "noncentral_t_holds_zero", lambda *args: None)
+            recomputed = audit(frame, **kw).to_dict()["influence"]
+        assert quick == recomputed
     searched = [e for e in quick["effects"].values() if e["fragility_null"]["count"] is not None]
     assert searched  # the case did run a search

@@ -807,3 +807,48 @@ def test_audit_end_to_end_on_adelie_penguins():
                           rng=np.random.default_rng(seed))
     assert boot.low == pytest.approx(ref.confidence_interval.low, rel=1e-9)
     assert boot.high == pytest.approx(ref.confidence_interval.high, rel=1e-9)
+
+
+# ---------------------------------------------------------------------------------- containment
+
+
+def _holds_zero_cases():
+    rng = np.random.default_rng(2026)
+    for name in sorted(DATASETS):
+        yield name, DATASETS[name]()
+    for k in range(60):  # small and moderate groups, shifts near the test's critical value
+        na, nb = int(rng.integers(2, 40)), int(rng.integers(2, 40))
+        shift = rng.uniform(-1.5, 1.5)
+        yield f"drawn{k}", (np.round(rng.normal(shift, 1, na), 2), np.round(rng.normal(0, 1, nb), 2))
+
+
+@pytest.mark.parametrize("level", [0.9, 0.95, 0.99])
+def test_the_noncentral_t_interval_holds_zero_exactly_when_student_s_t_test_accepts(level):
+    """Without its ends, the noncentral-t interval of d holds 0 exactly when scipy's Student t
+    test has p >= 1 - level; the shortcut agrees with the computed interval wherever it answers,
+    and declines (None) only at a critical value's edge."""
+    answered = 0
+    for name, (a, b) in _holds_zero_cases():
+        held = parametric.noncentral_t_holds_zero(a, b, level, "noncentral_t")
+        interval = parametric.cohen_d(a, b, level).interval
+        if held is None:
+            continue
+        answered += 1
+        assert held == (interval.low <= 0.0 <= interval.high), name
+        assert held == (stats.ttest_ind(a, b).pvalue >= 1 - level), name
+    assert answered >= 60
+    a, b = DATASETS["adelie_mass_male_vs_female"]()
+    assert parametric.noncentral_t_holds_zero(a, b, level, "normal_approximation") is None
+
+
+def test_the_noncentral_t_shortcut_declines_at_the_critical_value():
+    # groups whose t statistic sits on the two-sided 5% critical value of Student's t
+    rng = np.random.default_rng(4)
+    a, b = rng.normal(0, 1, 12), rng.normal(0, 1, 12)
+    a = (a - a.mean()) / a.std(ddof=1)
+    b = (b - b.mean()) / b.std(ddof=1)  # both SDs 1: the pooled SD is 1
+    t_crit = stats.t.ppf(0.975, 22)
+    shift = t_crit / math.sqrt(12 * 12 / 24)
+    assert parametric.noncentral_t_holds_zero(a + shift, b, 0.95, "noncentral_t") is None
+    assert parametric.noncentral_t_holds_zero(a + 1.01 * shift, b, 0.95, "noncentral_t") is False
+    assert parametric.noncentral_t_holds_zero(a + 0.99 * shift, b, 0.95, "noncentral_t") is True
