@@ -11,7 +11,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Any
 
-SCHEMA_VERSION = "1.0"
+SCHEMA_VERSION = 2  # integer; raised on every incompatible change (docs/output-contract.md)
 
 
 def plain(value: Any) -> Any:
@@ -317,7 +317,7 @@ class AuditResult(_Plain):
     settings: Settings
     caution: str
     tool_version: str
-    schema_version: str = SCHEMA_VERSION
+    schema_version: int = SCHEMA_VERSION
     warnings: tuple[str, ...] = field(default=())
     subject_column: str | None = None
     tests: dict = field(default_factory=dict)

@@ -43,6 +43,7 @@ from auditor.decide import quoted_interval
 from auditor.sources import Source
 from auditor.pipeline import SCREEN_COMPANIONS
 from auditor.policy import INDICES
+from auditor.results import SCHEMA_VERSION
 
 MULTIPLE_OUTCOMES_NOTE = (
     "Screening many outcomes inflates false positives: with 20 independent outcomes and no real"
@@ -814,7 +815,8 @@ def _write_outputs(out: Path, ordered_rows, skipped, policy, seed, sort,
             writer = csv.writer(f_csv)
             fields = list(MANY_FIELDS if many else FIELDS) + ["report"]
             writer.writerow(fields)
-            f_json.write('{\n  "policy": ' + json.dumps(policy.stamp()) + ',\n  "seed": '
+            f_json.write('{\n  "schema_version": ' + json.dumps(SCHEMA_VERSION)
+                         + ',\n  "policy": ' + json.dumps(policy.stamp()) + ',\n  "seed": '
                          + json.dumps(seed) + ',\n  "sorted_by": ' + json.dumps(sort)
                          + ',\n  "note": ' + json.dumps(MULTIPLE_OUTCOMES_NOTE) + files_doc
                          + ',\n  "skipped": ' + json.dumps(skipped_doc)

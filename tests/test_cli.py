@@ -15,6 +15,7 @@ import pytest
 
 import auditor.pipeline
 from auditor.errors import UndefinedEffectWarning
+from auditor.results import SCHEMA_VERSION
 
 # Reading speed (words per minute) of volunteers given a page set in a serif or a sans font.
 READING = """font,words_per_min
@@ -378,7 +379,7 @@ def test_json_path_that_is_a_folder(run_cli, reading_csv, tmp_path):
 
 def test_json_document_shape(audit_json, reading_csv):
     doc = audit_json(reading_csv, "words_per_min", "font")
-    assert isinstance(doc["schema_version"], str) and doc["schema_version"]
+    assert doc["schema_version"] == SCHEMA_VERSION and isinstance(doc["schema_version"], int)
     assert doc["design"] == "two_independent"
     assert doc["outcome"] == "words_per_min"
     assert doc["direction"] == "serif relative to sans"
