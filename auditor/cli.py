@@ -1,5 +1,5 @@
-"""Command line: `auditor check`, `auditor screen`, `auditor policy`, `auditor demo`. The only module that prints or
-writes files.
+"""Command line: `auditor check`, `auditor screen`, `auditor policy`, `auditor schema`,
+`auditor demo`. The only module that prints or writes files.
 
 Exit codes: 0 ok; 1 a problem with the data, file or options (one line on stderr); 2 usage;
 3 unexpected internal error (traceback only with --debug); 130 interrupted.
@@ -14,6 +14,7 @@ import warnings
 from pathlib import Path
 
 from auditor import __version__
+from auditor.schema import SCHEMA_NAMES
 
 EXIT_OK, EXIT_DATA, EXIT_USAGE, EXIT_INTERNAL, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 
@@ -214,6 +215,20 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
                      help="show the full traceback if an internal error occurs")
     scr.set_defaults(handler=_screen)
+
+    sch = sub.add_parser(
+        "schema", help="print the JSON Schema of a document the tool writes",
+        description="Print the JSON Schema (draft 2020-12) of a JSON document the tool writes:"
+                    " 'audit' for the document of 'auditor check --json' and audit.json in a"
+                    " report folder, 'screen' for screen.json. Every field is described in it;"
+                    " docs/output-contract.md lists the changes between versions.",
+        epilog="Examples:\n"
+               "  auditor schema audit > audit.schema.json\n"
+               "  auditor schema screen",
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    sch.add_argument("name", choices=SCHEMA_NAMES,
+                     help="which document: audit or screen")
+    sch.set_defaults(handler=_schema)
 
     demo = sub.add_parser("demo", help="audit the bundled demo data",
                           description="Audit the bundled demo data set and write the results.")
@@ -452,6 +467,13 @@ def _policy_diff(args) -> int:
     print(f"{len(lines)} setting(s) differ ({first.source} -> {second.source}):")
     for line in lines:
         print(f"  {line}")
+    return EXIT_OK
+
+
+def _schema(args) -> int:
+    from auditor.schema import schema_text
+
+    sys.stdout.write(schema_text(args.name))
     return EXIT_OK
 
 
