@@ -15,15 +15,14 @@ import json
 from importlib import resources
 from typing import Any
 
-from auditor.errors import AuditError
-
 SCHEMA_NAMES = ("audit", "screen")
 SHOWN_PROBLEMS = 5  # problems listed in a validation error
 JSONSCHEMA_MISSING = "validating a document needs the jsonschema package: pip install jsonschema"
 
 
-class SchemaError(AuditError):
-    """A document that does not follow its schema, or a schema that cannot be used."""
+class SchemaError(ValueError):
+    """A document that does not follow its schema, an unknown schema name, or validation asked
+    for without the jsonschema package."""
 
 
 def _check_name(name: str) -> str:
@@ -87,12 +86,22 @@ def validator(name: str, fast: bool = False):
 def problems(document: Any, checker) -> list[str]:
     """Every way `document` breaks the schema of `checker` (a validator), as 'path: message'
     lines in document order; empty when it follows the schema."""
-    from jsonschema.exceptions import best_match
-
-    # an error of anyOf or of a referenced branch holds the specific ones: show the closest
-    found = [best_match([e]) for e in checker.iter_errors(document)]
+    found = [_closest(e) for e in checker.iter_errors(document)]
     found.sort(key=lambda e: [str(p) for p in e.absolute_path])
-    return [f"{_path(e.absolute_path)}: {e.message}" for e in found]
+    return [f"{_path(e.absolute_path)}: {_short(e.message)}" for e in found]
+
+
+def _closest(error):
+    """The specific error inside an anyOf/oneOf one (e.g. an object or null): of the branches
+    whose type fits the value, the deepest failure."""
+    while error.context:
+        fitting = [e for e in error.context if e.validator != "type"] or list(error.context)
+        error = max(fitting, key=lambda e: len(e.absolute_path))
+    return error
+
+
+def _short(message: str, limit: int = 200) -> str:
+    return message if len(message) <= limit else message[:limit - 5] + " ..."
 
 
 def _path(parts) -> str:
