@@ -1,8 +1,10 @@
-"""Shared fixtures for the command-line and file-loading tests."""
+"""Shared fixtures for the command-line and file-loading tests, and the check that every JSON
+document the suite produces follows its published schema."""
 
 from __future__ import annotations
 
 import json
+import os
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -71,3 +73,61 @@ def write_file(tmp_path):
         return path
 
     return write
+
+
+# ------------------------------------------------------------------ the output contract
+
+SCHEMA_HOOK_VARIABLE = "AUDITOR_SCHEMA_HOOK"  # "0" turns the check off (to time its cost only)
+
+
+def schema_hook_on() -> bool:
+    return os.environ.get(SCHEMA_HOOK_VARIABLE, "1") != "0"
+
+
+@pytest.fixture(scope="session")
+def schema_checkers():
+    """name -> a validator of that document's schema, each built once for the whole session
+    (with its references inlined: the same rules, checked faster)."""
+    from auditor.schema import validator
+
+    built = {}
+
+    def get(name: str):
+        if name not in built:
+            built[name] = validator(name, fast=True)
+        return built[name]
+
+    return get
+
+
+@pytest.fixture(autouse=True)
+def every_document_follows_its_schema(monkeypatch, schema_checkers):
+    """Every audit document made anywhere in the suite (`AuditResult.to_dict`, through which
+    `auditor.render.to_json`, `auditor check --json` and audit.json pass) and every screen.json
+    written (checked after `auditor.screen._write_outputs` returns) is validated against its
+    schema: a field added, renamed or retyped without its schema entry fails the test that made
+    the document. Documents made in worker processes are checked where the parent reads them
+    (screen.json), not inside the workers."""
+    if not schema_hook_on():
+        yield
+        return
+    from auditor import results, screen
+    from auditor.schema import check
+
+    to_dict = results.AuditResult.to_dict
+    write_outputs = screen._write_outputs
+
+    def checked_to_dict(self):
+        document = to_dict(self)
+        check(document, "audit", schema_checkers("audit"))
+        return document
+
+    def checked_write_outputs(*args, **kwargs):
+        files = write_outputs(*args, **kwargs)
+        document = json.loads(files.json.read_text(encoding="utf-8"))
+        check(document, "screen", schema_checkers("screen"))
+        return files
+
+    monkeypatch.setattr(results.AuditResult, "to_dict", checked_to_dict)
+    monkeypatch.setattr(screen, "_write_outputs", checked_write_outputs)
+    yield
