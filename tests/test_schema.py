@@ -29,21 +29,21 @@ from conftest import schema_hook_on
 BOOT = 120
 ROOT = Path(__file__).resolve().parents[1]
 
-# Minutes to assemble a flat-pack shelf, by people given the printed or the video instructions.
-# Line 6 has no time and line 9 a word instead of one: both are excluded.
+# Minutes to assemble a flat-pack shelf, by people given the printed or the illustrated
+# instructions. Line 6 has no time and line 9 a word instead of one: both are excluded.
 SHELVES = """guide,minutes
 printed,41
-video,33
+pictures,33
 printed,52
-video,29
+pictures,29
 printed,
-video,35
+pictures,35
 printed,47
-video,quick
+pictures,quick
 printed,38
-video,31
+pictures,31
 printed,44
-video,40
+pictures,40
 """
 
 # Resting pulse (beats per minute) of the same volunteers before and after a month of swimming;
