@@ -48,6 +48,7 @@ ALLOCATION_WORDS = frozenset({"arm", "treatment", "allocation", "intervention", 
                               "condition", "factor"})
 MAX_LEVELS = 8  # a grouping column has 2 to this many levels
 MAX_COLUMNS_READ = 300  # above this many columns only the id-named ones are looked at
+MAX_CELLS_READ = 2_000_000  # ... and above this many cells of the other columns
 
 
 def _words(name: str) -> set[str]:
@@ -62,14 +63,15 @@ def is_id_name(name: str) -> bool:
     return bool(words & ID_WORDS) and words <= ID_WORDS | ID_SUFFIXES
 
 
-def columns_to_look_at(header: tuple[str, ...], named: list[str]) -> list[str]:
-    """The columns the guard reads beside the named ones: all of them (but names the header
-    holds twice, which cannot be read by name), or only the id-named ones in a file of more than
-    MAX_COLUMNS_READ columns."""
+def columns_to_look_at(header: tuple[str, ...], named: list[str], rows: int) -> list[str]:
+    """The columns the guard reads beside the named ones, in a table of `rows` rows: all of them
+    (but names the header holds twice, which cannot be read by name), or only the id-named ones
+    when there are more than MAX_COLUMNS_READ columns or the others would hold more than
+    MAX_CELLS_READ cells (the check then costs no more than reading one batch of a screen)."""
     twice = {c for c, k in Counter(header).items() if k > 1}  # ambiguous: not read by name
     others = [c for c in dict.fromkeys(header) if c not in named and c.strip()
               and c not in twice]
-    if len(header) > MAX_COLUMNS_READ:
+    if len(header) > MAX_COLUMNS_READ or len(others) * rows > MAX_CELLS_READ:
         others = [c for c in others if is_id_name(c)]
     return others
 

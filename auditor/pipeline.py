@@ -132,12 +132,12 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
         table = data
     elif isinstance(data, (str, os.PathLike)):
         table = read_table(data, columns)
-        others = columns_to_look_at(table.header, columns)
+        others = columns_to_look_at(table.header, columns, table.n_rows)
         if others:  # the design guard looks at the other columns too
             table = read_table(data, columns + others)
     else:
         header = tuple(str(c) for c in data.columns)
-        table = table_from_frame(data, columns + columns_to_look_at(header, columns))
+        table = table_from_frame(data, columns + columns_to_look_at(header, columns, len(data)))
     settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
                     policy=policy, scope=scope)
     if reference is not None and (wide is not None or subject is not None):

@@ -558,16 +558,14 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
 def _guard(data, first: Table, fixed: list[str], group: str, groups, subject,
            overrides) -> tuple[str, ...]:
     """The design guard (`guard.py`) of one source, once, on its columns beside the grouping and
-    the subject (only the id-named ones when the others would hold more cells than a batch): a
-    DesignError naming the file, or the override notes."""
+    the subject (`guard.columns_to_look_at`): a DesignError naming the file, or the override
+    notes."""
     from auditor.design import _choose_levels, _levels
-    from auditor.guard import check_independent, check_repeated, columns_to_look_at, is_id_name
+    from auditor.guard import check_independent, check_repeated, columns_to_look_at
     from auditor.pipeline import table_from_frame
 
     named = list(fixed)  # the outcomes are looked at too: a text column among them is no outcome
-    others = columns_to_look_at(first.header, named)
-    if len(others) * first.n_rows > BATCH_CELLS:  # no more than a batch's cells: the id columns
-        others = [c for c in others if is_id_name(c)]
+    others = columns_to_look_at(first.header, named, first.n_rows)
     if not isinstance(data, (str, os.PathLike)):
         table = table_from_frame(data, fixed + others)
     elif all(c in first.columns for c in others):  # a workbook, read whole already
@@ -730,8 +728,10 @@ def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, eng
         adjusted = [holm(pvalues), benjamini_hochberg(pvalues)]
         if many:  # and within each file
             within = [[None] * len(pvalues), [None] * len(pvalues)]
-            for k in range(len(plans)):
-                members = [i for i, (kk, _) in enumerate(position) if kk == k]
+            rows_of = [[] for _ in plans]
+            for i, (k, _) in enumerate(position):
+                rows_of[k].append(i)
+            for members in rows_of:
                 for a, method in enumerate((holm, benjamini_hochberg)):
                     for i, value in zip(members, method([pvalues[i] for i in members])):
                         within[a][i] = value

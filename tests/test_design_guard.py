@@ -215,3 +215,21 @@ def test_an_unknown_override_is_refused_in_python():
         audit(frame, outcome="y", group="drug", overrides=["two_factors"])
     result = audit(frame, outcome="y", group="drug", overrides=["one_factor"], resamples=200)
     assert any("'dose'" in w for w in result.warnings)
+
+
+def test_a_large_table_is_checked_on_its_id_columns_only(monkeypatch):
+    """Above MAX_CELLS_READ cells in the other columns the check reads only the id-named ones:
+    a repeated participant still stops the audit, a crossed factor is no longer looked at."""
+    import pandas as pd
+
+    import auditor.guard as guard
+    from auditor.errors import DesignError
+    from auditor.pipeline import audit
+
+    monkeypatch.setattr(guard, "MAX_CELLS_READ", 10)
+    factorial = pd.read_csv(io.StringIO(balanced_factorial()))
+    result = audit(factorial, outcome="y", group="drug", resamples=200)
+    assert not any("design check" in w for w in result.warnings)
+    repeated = pd.read_csv(io.StringIO(several_rows_within_a_group()))
+    with pytest.raises(DesignError, match="participant 'A0'"):
+        audit(repeated, outcome="score", group="arm", resamples=200)

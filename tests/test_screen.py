@@ -927,6 +927,7 @@ def test_the_screen_scope_matches_the_full_audit_in_harder_cases(case):
 
 def test_the_design_check_of_a_large_file_reads_only_its_id_columns(run_cli, write_file,
                                                                    tmp_path, monkeypatch):
+    import auditor.guard as guard
     import auditor.screen as screen_module
 
     columns = dict(SORT_COLUMNS)
@@ -939,7 +940,7 @@ def test_the_design_check_of_a_large_file_reads_only_its_id_columns(run_cli, wri
         asked.append(list(names))
         return real_read(source, names)
 
-    monkeypatch.setattr(screen_module, "BATCH_CELLS", 100)  # the other columns hold more
+    monkeypatch.setattr(guard, "MAX_CELLS_READ", 100)  # the other columns hold more
     monkeypatch.setattr(screen_module, "read_table", recording_read)
     _screen(run_cli, path, tmp_path / "out")
     assert asked[1] == ["g", "participant_id"]  # the design check's one read
