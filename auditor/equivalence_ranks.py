@@ -168,17 +168,24 @@ def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     if np.ptp(a) == 0 and np.ptp(b) == 0:
         return make(shift.value, "both groups are constant: the rank tests only see whether"
                                  " the two values differ, not by how much")
+    return _shift_tests("mann_whitney_shift", lambda x: mann_whitney_tails(x, b),
+                        lambda bound: shifted_against(a, b, bound), a, shift, bounds, alpha)
+
+
+def _shift_tests(method: str, tails, shifted, data, shift, bounds, alpha) -> EquivalenceResult:
+    """The two one-sided rank tests of a Hodges-Lehmann shift at its bounds and the two-sided
+    test at 0, assembled: `tails(x)` gives (upper p, lower p, statistic, method) of the rank
+    test on data x, `shifted(bound)` the data moved by a bound, `data` the data as they are."""
     low, high = bounds
-    up_low, down_low, _, m_low = mann_whitney_tails(shifted_against(a, b, low), b)
-    up_high, down_high, _, m_high = mann_whitney_tails(shifted_against(a, b, high), b)
-    up0, down0, u0, m0 = mann_whitney_tails(a, b)
-    p_diff = two_sided(up0, down0)
+    up_low, down_low, _, m_low = tails(shifted(low))
+    up_high, down_high, _, m_high = tails(shifted(high))
+    up0, down0, statistic0, m0 = tails(data)
     iv = shift.interval
     notes = (_method_note("null distributions", {"low": m_low, "high": m_high, "zero": m0}),
              *shift.notes)
-    return assemble("hodges_lehmann", "mann_whitney_shift", shift.value, 0.0, bounds, alpha,
-                    up_low, down_high, min(up_high, down_low), p_diff, (iv.low, iv.high), u0,
-                    math.nan, notes)
+    return assemble("hodges_lehmann", method, shift.value, 0.0, bounds, alpha, up_low,
+                    down_high, min(up_high, down_low), two_sided(up0, down0), (iv.low, iv.high),
+                    statistic0, math.nan, notes)
 
 
 # ------------------------------------------------------------------ paired data: signed ranks
@@ -253,17 +260,8 @@ def paired_hodges_lehmann_tost(x_or_d, margin, alpha: float = 0.05, *,
     if np.ptp(d) == 0:
         return make(shift.value, "every difference is equal: the signed ranks carry no"
                                  " information about the size of the shift")
-    low, high = bounds
-    up_low, down_low, _, m_low = signed_rank_tails(_shifted(d, low, digits))
-    up_high, down_high, _, m_high = signed_rank_tails(_shifted(d, high, digits))
-    up0, down0, t0, m0 = signed_rank_tails(d)
-    p_diff = two_sided(up0, down0)
-    iv = shift.interval
-    notes = (_method_note("null distributions", {"low": m_low, "high": m_high, "zero": m0}),
-             *shift.notes)
-    return assemble("hodges_lehmann", "signed_rank_shift", shift.value, 0.0, bounds, alpha,
-                    up_low, down_high, min(up_high, down_low), p_diff, (iv.low, iv.high), t0,
-                    math.nan, notes)
+    return _shift_tests("signed_rank_shift", signed_rank_tails,
+                        lambda bound: _shifted(d, bound, digits), d, shift, bounds, alpha)
 
 
 # ------------------------------------------------------------------ paired data: PS_dep
