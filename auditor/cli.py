@@ -84,6 +84,10 @@ def build_parser() -> argparse.ArgumentParser:
                             " repeated (three or more); in a wide file it names the rows")
     check.add_argument("--paired", metavar="COL_A,COL_B[,...]",
                        help="wide file: the condition columns, one row per participant")
+    check.add_argument("--cluster", metavar="COLUMN",
+                       help="two independent groups: the column saying which cluster (class,"
+                            " clinic, coach) each case belongs to; adds the intraclass"
+                            " correlation, the design effect and cluster-bootstrap intervals")
     check.add_argument("--level", type=float, default=None,
                        help="confidence level of every interval (default: the policy's, 0.95)")
     check.add_argument("--reference", metavar="LABEL",
@@ -340,6 +344,7 @@ def _check(args) -> int:
             level=args.level, resamples=args.boot, seed=args.seed,
             reference=args.reference, progress=_progress_printer(), policy=policy,
             coverage_check=args.coverage_check, margins=margins, overrides=_overrides(args),
+            cluster=args.cluster,
         )
     document = to_json(result)
     if args.out is not None:

@@ -114,8 +114,12 @@ def data_decimals(cells) -> int | None:
     return most
 
 
-def _is_missing(label: str) -> bool:
+def is_missing(label: str) -> bool:
+    """Whether a label (blanks trimmed) is empty or a missing marker such as NA."""
     return label.lower() in MISSING_MARKERS
+
+
+_is_missing = is_missing
 
 
 def _levels(labels: list[str]) -> list[str]:

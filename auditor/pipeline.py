@@ -14,7 +14,7 @@ import numpy as np
 from auditor import __version__, diagnostics, kgroups, paired, rationale, significance
 from auditor.decide import (MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows,
                             test_matched_effect)
-from auditor.design import (Groups, Repeated, independent_groups, long_repeated,
+from auditor.design import (Groups, Repeated, independent_groups, is_missing, long_repeated,
                             parse_group_list, wide_repeated)
 from auditor.effects import (EffectSpec, k_independent_effects, k_repeated_effects,
                              paired_effects, two_group_effects)
@@ -68,7 +68,8 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
           seed: int | None = None, reference: str | None = None,
           progress: Progress = None, policy=None, scope: str = "full",
           coverage_check: bool | None = None,
-          margins: dict[str, float] | None = None, overrides=()) -> AuditResult:
+          margins: dict[str, float] | None = None, overrides=(),
+          cluster: str | None = None) -> AuditResult:
     """Audit a comparison of groups or conditions.
 
     The design follows from the arguments:
@@ -102,6 +103,11 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     design on where the audit can still be read; the result's warnings record it. A `Table`
     passed in (a screen's batch) is not guarded again: the screen guards each file once.
 
+    `cluster` names the column saying which cluster each case belongs to (class, clinic, coach)
+    in two independent groups: the result then has `clusters` (`with_clusters`: the intraclass
+    correlation, the design effect and cluster-bootstrap intervals of every index) and a warning
+    that the other intervals assume independent cases.
+
     `coverage_check` (default: the policy's `intervals.coverage_check`) adds the estimated
     coverage of the primary index's quoted interval on populations shaped like the data
     (`with_coverage_check`); a screen never runs it.
@@ -126,6 +132,9 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
                           " condition columns of a wide file (--paired BEFORE,AFTER)")
     else:
         columns = [outcome, group] + ([subject] if subject else [])
+    if cluster is not None:
+        check_cluster_column(cluster, columns, wide is not None or subject is not None)
+        columns.append(cluster)
     overrides = check_overrides(overrides)
     guarded = not isinstance(data, Table)
     if isinstance(data, Table):  # already read (the screen reads a batch of columns at a time)
@@ -161,11 +170,17 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     else:
         design = independent_groups(table, outcome, group, chosen)
         if guarded:
-            notes = check_independent(table, [outcome, group], group, list(design.labels),
-                                      overrides)
+            notes = check_independent(table, [outcome, group] + ([cluster] if cluster else []),
+                                      group, list(design.labels), overrides)
         check_margin_names(margins, design)
+        labels = cluster_labels(table, design, cluster) if cluster is not None else None
         if len(design.labels) == 2:
             result = _audit_two_groups(design, reference, **settings)
+            if labels is not None:
+                result = with_texts(with_clusters(result, design, cluster, labels), policy)
+        elif cluster is not None:
+            raise DesignError(f"--cluster applies to two independent groups; '{group}' has"
+                              f" {len(design.labels)} here: choose two with --groups")
         elif reference is not None:
             raise DesignError("--reference applies to two independent groups only")
         else:
@@ -176,6 +191,52 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     if result.design == "two_independent":
         result = dataclasses.replace(result, conversions=scale_conversions(result))
     return with_coverage_check(result, policy) if coverage else result
+
+
+def check_cluster_column(cluster: str, columns: list[str], within: bool) -> None:
+    """A DesignError before the file is read when `cluster` cannot name clusters of cases."""
+    if within:
+        raise DesignError("--cluster applies to two independent groups; with --subject or"
+                          " --paired the participant is already the unit that is resampled")
+    if cluster in columns:
+        raise DesignError(f"--cluster '{cluster}' is also named as the outcome or the group;"
+                          " name the column that says which cluster each case belongs to")
+
+
+def cluster_labels(table: Table, design: Groups, cluster: str) -> tuple[tuple[str, ...], ...]:
+    """Each analysed case's cluster label (blanks trimmed), group by group in the design's
+    order; a DesignError naming the file and line when one is empty."""
+    position = {int(line): i for i, line in enumerate(table.lines)}
+    column = table.columns[cluster]
+    out = []
+    for rows in design.rows:
+        found = []
+        for line in rows:
+            label = column[position[int(line)]].strip()
+            if is_missing(label):
+                raise DesignError(f"{table.path}, line {int(line)}: the cluster column"
+                                  f" '{cluster}' is empty; every case needs its cluster for"
+                                  " --cluster (fill it in, or leave the row out of the file)")
+            found.append(label)
+        out.append(tuple(found))
+    return tuple(out)
+
+
+def with_clusters(result: AuditResult, design: Groups, cluster: str,
+                  labels: tuple[tuple[str, ...], ...]) -> AuditResult:
+    """The two-group result with `clusters` (`clusters.clustering`: the intraclass correlation,
+    the design effect and every index's cluster-bootstrap interval, from the audit's level,
+    resamples and seed) and its warning."""
+    from auditor.clusters import clustering, clustering_warning
+
+    settings = result.settings
+    specs = two_group_effects(_reference_index(design.labels, settings.reference))
+    estimates = {e.name: e.estimate for e in result.effects}
+    block = clustering(cluster, design.labels, design.values, labels, specs, estimates,
+                       settings.level, settings.bootstrap_resamples, settings.seed)
+    return dataclasses.replace(result, clusters=block,
+                               warnings=tuple(result.warnings) + (clustering_warning(block),)
+                               + tuple(f"clusters: {n}" for n in block.notes))
 
 
 def check_overrides(given) -> frozenset:

@@ -308,11 +308,40 @@ def _interval_remarks(result, decision, dec: int) -> list[str]:
         out.append(f"The quoted interval and the {decision.test['label']} disagree about the"
                    " no-effect value; no interval of this index agrees with that test by"
                    " construction.")
+    out += _cluster_remarks(result, decision, dec)
     check = getattr(result, "coverage_check", None)
     if check is not None and check.verdict and check.verdict.startswith("falls short"):
         out.append(coverage_text(check, dec) + " Read the interval as narrower than its"
                    " nominal level claims.")
     return out
+
+
+def _cluster_remarks(result, decision, dec: int) -> list[str]:
+    """With a named cluster column: the clustering, and the primary index's cluster-bootstrap
+    interval beside the quoted one (and whether the two agree about the no-effect value)."""
+    block = getattr(result, "clusters", None)
+    if block is None:
+        return []
+    icc = "undefined" if block.icc.icc is None else fmt(block.icc.icc, dec)
+    effect = "undefined" if block.design_effect is None else fmt(block.design_effect, dec)
+    text = (f"The cases are clustered in '{block.column}' (intraclass correlation {icc}, design"
+            f" effect {effect}), and the quoted interval assumes independent cases.")
+    found = block.interval(decision.primary)
+    primary = result.effect(decision.primary)
+    if found is None or found.interval is None:
+        reason = "the index is not resampled by cluster" if found is None else found.reason
+        return [text + f" No cluster-bootstrap interval of {NAMES[decision.primary]}: {reason}."]
+    iv = found.interval
+    holds = iv.low <= primary.null_value <= iv.high
+    quoted = decision.interval
+    quoted_holds = (None if quoted.get("low") is None or quoted.get("high") is None
+                    else quoted["low"] <= primary.null_value <= quoted["high"])
+    verdict = ("; unlike the quoted one, it holds the no-effect value" if holds and quoted_holds
+               is False else "; unlike the quoted one, it excludes the no-effect value"
+               if not holds and quoted_holds else "")
+    return [text + f" Resampling whole clusters within each group, {NAMES[decision.primary]} has"
+            f" the {iv.level * 100:g}% interval [{fmt(iv.low, dec)}, {fmt(iv.high, dec)}]"
+            + verdict + "; quote it, or an analysis that models the clusters."]
 
 
 def _mean_index(result) -> str:
@@ -338,7 +367,17 @@ def methods_sentence(result, decision, policy: Policy) -> str:
             + f"; the test was the {decision.test['label']}"
             + _size_clause(result, decision.primary)
             + f"; bootstrap intervals used"
-            f" {s.bootstrap_resamples} stratified resamples (BCa) with seed {s.seed}.")
+            f" {s.bootstrap_resamples} stratified resamples (BCa) with seed {s.seed}"
+            + _cluster_clause(result) + ".")
+
+
+def _cluster_clause(result) -> str:
+    block = getattr(result, "clusters", None)
+    if block is None:
+        return ""
+    return (f", and cluster-bootstrap intervals as many resamples of whole clusters of"
+            f" '{block.column}' within each group (BCa, acceleration from leaving out one cluster"
+            " at a time)")
 
 
 def _size_clause(result, name: str) -> str:

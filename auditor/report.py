@@ -224,6 +224,36 @@ def _conversion_lines(result) -> list[str]:
     return out
 
 
+def _cluster_lines(result) -> list[str]:
+    """Under the effects table, when a cluster column was named: the clustering (clusters,
+    intraclass correlation, design effect, effective sizes), then each index's cluster-bootstrap
+    interval beside the quoted one, then the block's notes."""
+    block = getattr(result, "clusters", None)
+    if block is None:
+        return []
+    icc = block.icc
+    counts = ", ".join(f"{g.label} {g.clusters} clusters of {g.mean_size:.3g} cases on average"
+                       for g in block.groups)
+    effect = ("undefined" if block.design_effect is None else
+              f"{_n(block.design_effect)} (effective sizes "
+              + " and ".join(_n(x, 1) for x in block.effective_n) + ")")
+    lines = [f"Cases are clustered in {block.column}: {counts}. Intraclass correlation"
+             f" {_n(icc.icc) if icc.icc is not None else 'undefined (' + str(icc.reason) + ')'},"
+             f" design effect {effect}. The intervals above assume independent cases; the"
+             " cluster-bootstrap intervals below resample whole clusters within each group."]
+    for e in result.effects:
+        found = block.interval(e.name)
+        if found is None or e.estimate is None:
+            continue
+        name = NAMES.get(e.name, e.name)
+        iv = found.interval
+        quoted = (f"[{_n(e.ci_low)}, {_n(e.ci_high)}]" if e.ci_low is not None else "none")
+        lines.append(f"{name}: cluster bootstrap [{_n(iv.low)}, {_n(iv.high)}] against {quoted}"
+                     " quoted." if iv is not None else
+                     f"{name}: no cluster-bootstrap interval, {found.reason}.")
+    return lines + [f"{n[0].upper()}{n[1:]}." for n in block.notes]
+
+
 def _interval_lines(result) -> list[str]:
     """Under the effects table: each withheld bootstrap with its reason, and each interval
     computed beside an index's own (test-matched or boundary-valid ones)."""
@@ -356,7 +386,7 @@ def render_html(result, figures=()) -> str:
             level = result.settings.level
             body.append(f"<p>{_e(f'{level * 100:g}% intervals; the primary index is in bold;')}"
                         f" {_e('labels are conventional benchmarks (see the policy).')}</p>")
-            lines = _interval_lines(result) + _conversion_lines(result)
+            lines = _interval_lines(result) + _conversion_lines(result) + _cluster_lines(result)
             if lines:
                 body.append('<ul class="intervals">'
                             + "".join(f"<li>{_e(x)}</li>" for x in lines) + "</ul>")
@@ -447,7 +477,7 @@ def render_markdown(result, figures=(), figure_folder: str = "figures") -> str:
         elif key == "effects":
             head, rows = _effect_rows(result)
             out += _md_table(head, [r for r, _ in rows], [p for _, p in rows]) + [""]
-            lines = _interval_lines(result) + _conversion_lines(result)
+            lines = _interval_lines(result) + _conversion_lines(result) + _cluster_lines(result)
             out += [f"- {_m(x)}" for x in lines] + ([""] if lines else [])
         elif key == "influence":
             head, rows = _influence_rows(result)

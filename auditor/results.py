@@ -328,6 +328,7 @@ class AuditResult(_Plain):
     coverage_check: Any = None  # coverage_check.CoverageCheck of the primary index, when asked
     equivalence: dict = field(default_factory=dict)  # index -> its question of size (margins.py)
     conversions: Any = None  # conversions.Conversions (two groups)
+    clusters: Any = None  # clusters.Clusters, when a cluster column was named (two groups)
     samples: Samples | None = field(default=None, repr=False, compare=False)
 
     @property
@@ -389,6 +390,7 @@ class AuditResult(_Plain):
                                else self.coverage_check.to_dict()),
             "equivalence": plain(self.equivalence),
             "conversions": None if self.conversions is None else self.conversions.to_dict(),
+            "clusters": None if self.clusters is None else self.clusters.to_dict(),
             "settings": plain(self.settings),
             "warnings": list(self.warnings),
             "caution": self.caution,

@@ -1,0 +1,354 @@
+"""Clustered cases in two independent groups: how alike the cases of one cluster are (the
+intraclass correlation), how much that inflates the variance of a group comparison (the design
+effect), and intervals for the two-group indices that resample whole clusters.
+
+Pupils taught in the same class, patients treated at the same clinic or athletes coached by the
+same coach share more than chance: their outcomes are correlated, and every interval computed as
+if the cases were independent is too narrow. When the user names the cluster column
+(`audit(..., cluster=COLUMN)`, `auditor check --cluster COLUMN`), the audit adds:
+
+- the intraclass correlation of the outcome within groups (`intraclass_correlation`: the one-way
+  analysis-of-variance estimator with clusters nested in groups, so that the difference between
+  the groups is not counted as likeness within clusters);
+- the design effect of the clustering (`design_effect`) and each group's effective size;
+- cluster-bootstrap intervals (`cluster_bootstrap`): each resample draws, within each group, as
+  many clusters as the group has, with replacement, and takes every case of each drawn cluster,
+  so the groups' sizes vary from resample to resample. BCa limits with the acceleration from
+  leaving out one cluster at a time (Davison & Hinkley 1997, sec. 3.8, for resampling clusters;
+  Field & Welsh 2007 on its properties; both from memory).
+
+A cluster whose cases fall in both groups (a clinic treating arms of a trial) is split: each
+group's part is resampled within that group, and the correlation between its parts is not
+carried into the intervals (a note says so).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from auditor.resampling import bca_interval, chunk_size
+from auditor.results import Interval, _Plain, plain
+
+CLUSTER_STREAM = 9  # spawn key of the random stream the cluster bootstrap draws from
+FEW_CLUSTERS = 10  # fewer clusters than this in a group: the cluster bootstrap is rough (common practice)
+
+
+@dataclass(frozen=True)
+class ClusterGroup(_Plain):
+    """One group's clusters: how many, how many cases, and the sizes of its clusters."""
+
+    label: str
+    clusters: int
+    cases: int
+    mean_size: float
+    smallest: int
+    largest: int
+
+
+@dataclass(frozen=True)
+class IntraclassCorrelation(_Plain):
+    """The one-way ANOVA estimate of the intraclass correlation and its parts.
+
+    icc = (MSB - MSW) / (MSB + (n0 - 1) MSW), where MSB is the mean square between clusters
+    within groups (df_between = clusters - groups), MSW the mean square within clusters
+    (df_within = cases - clusters), and n0 the adjusted mean cluster size
+    n0 = (N - sum_g sum_c n_gc^2 / N_g) / (clusters - groups). `icc` is None with a `reason`
+    when a mean square has no degrees of freedom or both are 0."""
+
+    icc: float | None
+    ms_between: float | None
+    ms_within: float | None
+    df_between: int
+    df_within: int
+    n0: float | None
+    method: str = "one-way ANOVA estimator, clusters nested in groups"
+    reason: str | None = None
+
+
+@dataclass(frozen=True)
+class ClusterInterval(_Plain):
+    """An index with its cluster-bootstrap interval, or None with the reason."""
+
+    index: str
+    estimate: float | None
+    interval: Interval | None
+    undefined_resamples: int = 0
+    reason: str | None = None
+
+
+@dataclass(frozen=True)
+class Clusters(_Plain):
+    """What the audit found about the clustering of the cases (see the module docstring).
+
+    `design_effect` = 1 + (sum_c n_c^2 / N - 1) max(icc, 0), the variance of a mean of all N
+    cases under equal correlation within clusters relative to N independent cases; for clusters
+    of equal size m it is Kish's 1 + (m - 1) icc. `effective_n` is each group's cases divided by
+    it. `intervals` has one entry per two-group index, in the registry's order."""
+
+    column: str
+    groups: tuple[ClusterGroup, ...]
+    shared: tuple[str, ...]
+    icc: IntraclassCorrelation
+    design_effect: float | None
+    effective_n: tuple[float | None, ...]
+    resamples: int
+    intervals: tuple[ClusterInterval, ...]
+    notes: tuple[str, ...] = ()
+
+    def interval(self, name: str) -> ClusterInterval | None:
+        return next((c for c in self.intervals if c.index == name), None)
+
+    def to_dict(self) -> dict:
+        out = plain(self)
+        out["intervals"] = {c.index: {k: v for k, v in plain(c).items() if k != "index"}
+                            for c in self.intervals}
+        return out
+
+
+# ------------------------------------------------------------------ likeness within clusters
+
+
+def intraclass_correlation(values, clusters, strata=None) -> IntraclassCorrelation:
+    """The one-way ANOVA intraclass correlation of `values` grouped by `clusters` (labels, one
+    per value), with clusters nested in `strata` (the compared groups; None: one stratum).
+
+    The mean squares are those of the nested analysis of variance (cluster within stratum after
+    stratum, sums of squares of type I, as `statsmodels.formula.api.ols('y ~ C(g) + C(g):C(c)')`
+    gives them); n0 is the adjusted mean cluster size of the unbalanced one-way model (Donner
+    1986, Int. Stat. Rev. 54: 67-82, sec. 2, from memory), which is the common size when the
+    clusters are equal, where the estimate is pingouin's ICC1 of one stratum. It can fall below
+    zero when clusters differ less than chance makes them.
+    """
+    y = np.asarray(values, dtype=float)
+    cells = _cells(clusters, strata, y.size)
+    n_total = y.size
+    ss_w = ss_b = 0.0
+    n_cells, n_strata, size_term = 0, 0, 0.0
+    for members in cells:
+        stratum_mean = float(np.mean(y[np.concatenate(members)]))
+        stratum_n = sum(m.size for m in members)
+        n_strata += 1
+        for m in members:
+            part = y[m]
+            mean = float(np.mean(part))
+            ss_w += float(np.sum((part - mean) ** 2))
+            ss_b += m.size * (mean - stratum_mean) ** 2
+            size_term += m.size ** 2 / stratum_n
+            n_cells += 1
+    df_b, df_w = n_cells - n_strata, n_total - n_cells
+    if df_b < 1:
+        return IntraclassCorrelation(None, None, None, df_b, df_w, None,
+                                     reason="each group has a single cluster: nothing to compare"
+                                            " clusters with")
+    n0 = (n_total - size_term) / df_b
+    ms_b = ss_b / df_b
+    if df_w < 1:
+        return IntraclassCorrelation(None, ms_b, None, df_b, df_w, n0,
+                                     reason="every cluster has a single case: no variation"
+                                            " within clusters to compare with")
+    ms_w = ss_w / df_w
+    denominator = ms_b + (n0 - 1.0) * ms_w
+    if not denominator > 0:
+        return IntraclassCorrelation(None, ms_b, ms_w, df_b, df_w, n0,
+                                     reason="the outcome does not vary within groups")
+    return IntraclassCorrelation((ms_b - ms_w) / denominator, ms_b, ms_w, df_b, df_w, n0)
+
+
+def _cells(clusters, strata, n: int) -> list[list[np.ndarray]]:
+    """Per stratum (in order of first appearance), the positions of each of its clusters (in
+    order of first appearance)."""
+    clusters = np.asarray(clusters, dtype=object)
+    strata = np.zeros(n, dtype=np.int64) if strata is None else np.asarray(strata, dtype=object)
+    if clusters.shape != (n,) or strata.shape != (n,):
+        raise ValueError("values, clusters and strata must have the same length")
+    by_stratum: dict = {}
+    for i, (s, c) in enumerate(zip(strata.tolist(), clusters.tolist())):
+        by_stratum.setdefault(s, {}).setdefault(c, []).append(i)
+    return [[np.asarray(m, dtype=np.int64) for m in cs.values()] for cs in by_stratum.values()]
+
+
+def design_effect(icc: float | None, sizes: Sequence[int]) -> float | None:
+    """1 + (sum n_c^2 / N - 1) max(icc, 0) for clusters of sizes n_c and N cases in all.
+
+    Var(mean of all cases) = sigma^2 / N * (1 + (sum n_c^2 / N - 1) rho) when every pair of
+    cases in one cluster has correlation rho and cases of different clusters none; for equal
+    sizes m it is Kish's (1965) 1 + (m - 1) rho, and it is Eldridge, Ashby & Kerry's (2006,
+    Int. J. Epidemiol. 35: 1292-1300) 1 + ((cv^2 + 1) m - 1) rho with cv the coefficient of
+    variation of the sizes taken with the population SD (from memory). A negative estimate of
+    rho is taken as 0 (clustering cannot make cases more informative than independent ones in
+    this model)."""
+    if icc is None:
+        return None
+    sizes = np.asarray(sizes, dtype=float)
+    weighted = float(np.sum(sizes ** 2) / np.sum(sizes))
+    return 1.0 + (weighted - 1.0) * max(float(icc), 0.0)
+
+
+# ------------------------------------------------------------------ resampling clusters
+
+
+def _members(cluster_values: Sequence[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list]:
+    """Flat values of one group in cluster order, each cluster's size, and each cluster's
+    positions in the flat array."""
+    flat = np.concatenate([np.asarray(v, dtype=float) for v in cluster_values])
+    sizes = np.array([len(v) for v in cluster_values], dtype=np.int64)
+    starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+    return flat, sizes, [np.arange(s, s + k) for s, k in zip(starts, sizes)]
+
+
+def _draw(flat, positions, picks) -> np.ndarray:
+    """The cases of the clusters `picks`, in the order drawn."""
+    return flat[np.concatenate([positions[c] for c in picks])]
+
+
+def cluster_replicates(specs, clusters_a: Sequence[np.ndarray], clusters_b: Sequence[np.ndarray],
+                       resamples: int, rng: np.random.Generator) -> dict[str, np.ndarray]:
+    """Every index's value on `resamples` cluster resamples of the two groups.
+
+    `clusters_a`, `clusters_b`: each group's clusters, one array of values per cluster. Per
+    chunk of m resamples, `rng.integers(0, G_A, (m, G_A))` picks A's clusters and then
+    `rng.integers(0, G_B, (m, G_B))` B's (the order `scipy.stats.bootstrap` draws in when given
+    the clusters' positions as its two samples and `batch` = the chunk); resample r is the
+    cases of A's picked clusters in the order picked, and B's likewise. Resamples whose groups
+    have the same sizes are evaluated together with each index's vectorised `values`, which
+    gives the same numbers as evaluating them one at a time."""
+    flat_a, sizes_a, pos_a = _members(clusters_a)
+    flat_b, sizes_b, pos_b = _members(clusters_b)
+    g_a, g_b = len(clusters_a), len(clusters_b)
+    out = {s.name: np.empty(resamples) for s in specs}
+    step = chunk_size(int(sizes_a.sum()), int(sizes_b.sum()), resamples)
+    done = 0
+    while done < resamples:
+        m = min(step, resamples - done)
+        picks_a = rng.integers(0, g_a, (m, g_a))
+        picks_b = rng.integers(0, g_b, (m, g_b))
+        n_a, n_b = sizes_a[picks_a].sum(axis=1), sizes_b[picks_b].sum(axis=1)
+        shapes = np.stack([n_a, n_b], axis=1)
+        for shape in np.unique(shapes, axis=0):
+            rows = np.flatnonzero((shapes == shape).all(axis=1))
+            stacked_a = np.stack([_draw(flat_a, pos_a, picks_a[r]) for r in rows])
+            stacked_b = np.stack([_draw(flat_b, pos_b, picks_b[r]) for r in rows])
+            with np.errstate(all="ignore"):
+                for spec in specs:
+                    out[spec.name][done + rows] = spec.values(stacked_a, stacked_b)
+        done += m
+    return out
+
+
+def leave_one_cluster_out(spec, clusters_a, clusters_b) -> tuple[np.ndarray, np.ndarray]:
+    """The index with each cluster of A left out in turn, then each cluster of B (the
+    jackknife over clusters that gives the BCa acceleration)."""
+    def without(clusters, j):
+        return np.concatenate([np.asarray(v, dtype=float)
+                               for i, v in enumerate(clusters) if i != j])[None, :]
+
+    a = np.concatenate([np.asarray(v, dtype=float) for v in clusters_a])[None, :]
+    b = np.concatenate([np.asarray(v, dtype=float) for v in clusters_b])[None, :]
+    with np.errstate(all="ignore"):
+        loo_a = np.array([spec.values(without(clusters_a, j), b)[0]
+                          for j in range(len(clusters_a))], dtype=float)
+        loo_b = np.array([spec.values(a, without(clusters_b, j))[0]
+                          for j in range(len(clusters_b))], dtype=float)
+    return loo_a, loo_b
+
+
+def cluster_bootstrap(specs, estimates: dict[str, float | None], clusters_a, clusters_b,
+                      level: float, resamples: int,
+                      rng: np.random.Generator) -> tuple[ClusterInterval, ...]:
+    """Cluster-bootstrap BCa interval of every index in `specs` (`resampling.bca_interval` on
+    `cluster_replicates`, the acceleration from `leave_one_cluster_out`); `estimates` holds each
+    index's estimate on the data (None: undefined, no interval)."""
+    few = [len(c) for c in (clusters_a, clusters_b) if len(c) < 2]
+    if few:
+        reason = ("a group has a single cluster: resampling clusters cannot vary it")
+        return tuple(ClusterInterval(s.name, estimates.get(s.name), None, 0, reason)
+                     for s in specs)
+    defined = [s for s in specs if estimates.get(s.name) is not None]
+    replicates = cluster_replicates(defined, clusters_a, clusters_b, resamples, rng)
+    a = np.concatenate([np.asarray(v, dtype=float) for v in clusters_a])
+    b = np.concatenate([np.asarray(v, dtype=float) for v in clusters_b])
+    out = []
+    for spec in specs:
+        theta = estimates.get(spec.name)
+        if theta is None:
+            out.append(ClusterInterval(spec.name, None, None, 0,
+                                       "the index is undefined for these data"))
+            continue
+        degenerate = None if spec.degenerate is None else spec.degenerate(a, b)
+        boot = bca_interval(theta, replicates[spec.name],
+                            leave_one_cluster_out(spec, clusters_a, clusters_b), level,
+                            spec.bounds, degenerate)
+        interval = (None if boot.interval is None else
+                    Interval("cluster_bca_bootstrap", boot.interval.low, boot.interval.high,
+                             level, boot.interval.note))
+        out.append(ClusterInterval(spec.name, theta, interval, boot.undefined_resamples,
+                                   boot.reason))
+    return tuple(out)
+
+
+# ------------------------------------------------------------------ the audit's block
+
+
+def by_cluster(values: np.ndarray, labels: Sequence[str]) -> tuple[list[str], list[np.ndarray]]:
+    """One group's values split by cluster label, clusters in order of first appearance and each
+    cluster's values in file order."""
+    found: dict[str, list[int]] = {}
+    for i, lab in enumerate(labels):
+        found.setdefault(lab, []).append(i)
+    values = np.asarray(values, dtype=float)
+    return list(found), [values[np.asarray(m, dtype=np.int64)] for m in found.values()]
+
+
+def clustering(column: str, group_labels: Sequence[str], values: Sequence[np.ndarray],
+               cluster_labels: Sequence[Sequence[str]], specs, estimates: dict[str, float | None],
+               level: float, resamples: int, seed: int) -> Clusters:
+    """The `Clusters` block of a two-group audit: each group's values with their cluster labels,
+    the registry's two-group `specs` and their estimates on the data; the bootstrap draws from
+    SeedSequence(seed, spawn_key=(CLUSTER_STREAM,))."""
+    names, parts = zip(*(by_cluster(v, labs) for v, labs in zip(values, cluster_labels)))
+    groups = tuple(ClusterGroup(lab, len(p), int(sum(len(x) for x in p)),
+                                float(np.mean([len(x) for x in p])),
+                                int(min(len(x) for x in p)), int(max(len(x) for x in p)))
+                   for lab, p in zip(group_labels, parts))
+    shared = tuple(sorted(set(names[0]) & set(names[1])))
+    y = np.concatenate([np.asarray(v, dtype=float) for v in values])
+    icc = intraclass_correlation(
+        y, [c for labs in cluster_labels for c in labs],
+        [g for g, v in zip(group_labels, values) for _ in range(len(v))])
+    sizes = [len(x) for p in parts for x in p]
+    effect = design_effect(icc.icc, sizes)
+    effective = tuple(None if effect is None else g.cases / effect for g in groups)
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(CLUSTER_STREAM,)))
+    intervals = cluster_bootstrap(specs, estimates, parts[0], parts[1], level, resamples, rng)
+    notes = []
+    if shared:
+        listed = ", ".join(f"'{s}'" for s in shared[:5]) + (" ..." if len(shared) > 5 else "")
+        notes.append(f"{len(shared)} cluster(s) of '{column}' hold cases of both groups"
+                     f" ({listed}): each group's part is resampled within its group, so the"
+                     " correlation between the parts is not carried into the intervals")
+    small = [g for g in groups if g.clusters < FEW_CLUSTERS]
+    if small:
+        which = ", ".join(f"'{g.label}' {g.clusters}" for g in small)
+        notes.append(f"few clusters ({which}; fewer than {FEW_CLUSTERS} per group): cluster-"
+                     "bootstrap intervals are rough and tend to be too narrow with so few"
+                     " (common practice)")
+    if icc.icc is not None and icc.icc < 0:
+        notes.append(f"the intraclass correlation estimate is below 0 ({icc.icc:.3g}): the"
+                     " clusters differ less than chance makes them; the design effect takes it"
+                     " as 0")
+    return Clusters(column, groups, shared, icc, effect, effective, resamples, intervals,
+                    tuple(notes))
+
+
+def clustering_warning(block: Clusters) -> str:
+    """The one warning an audit with named clusters carries."""
+    icc = "undefined" if block.icc.icc is None else f"{block.icc.icc:.3g}"
+    effect = "undefined" if block.design_effect is None else f"{block.design_effect:.3g}"
+    counts = " and ".join(f"{g.clusters}" for g in block.groups)
+    return (f"cases are clustered in '{block.column}' ({counts} clusters; intraclass correlation"
+            f" {icc}, design effect {effect}): every interval except the cluster-bootstrap ones"
+            " assumes independent cases and is too narrow when the correlation is above 0;"
+            " quote the cluster-bootstrap interval (clusters.intervals)")
