@@ -9,7 +9,14 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:  # the classes of the later stages, named here for the annotations only
+    from auditor.clusters import Clusters
+    from auditor.conversions import Conversions
+    from auditor.coverage_check import CoverageCheck
+    from auditor.decide import Decision
+    from auditor.influence import Influence
 
 SCHEMA_VERSION = 2  # integer; raised on every incompatible change (docs/output-contract.md)
 
@@ -305,7 +312,28 @@ class Samples:
 
 @dataclass(frozen=True)
 class AuditResult(_Plain):
-    """Everything one audit found. `to_dict()` is the JSON document the command line writes."""
+    """Everything one audit found. `to_dict()` is the JSON document the command line writes,
+    whose layout is published as a JSON Schema (`auditor schema audit`, docs/output-contract.md):
+    each attribute below is the document's field of the same name, described there, and each
+    nested result class has the fields of its schema object (tests/test_result_api.py).
+
+    design: "two_independent", "paired", "k_independent" or "k_repeated".
+    groups: descriptives per group or condition, in the compared order (the first named first).
+    data: where every row of the file went (`DataAccount`).
+    diagnostics: `Diagnostics` (two groups), `PairedDiagnostics` or `KDiagnostics`.
+    effects: every index of the design's registry, in its order (`effect(name)` finds one).
+    tests: the design's tests of difference (omnibus or paired), by name; empty for two groups.
+    pairwise: after an omnibus design, each pair's two-condition effects and Holm-adjusted test.
+    influence: the jackknife of every index and the per-case table (`influence.Influence`).
+    decision: the policy's choice with its evidence and texts (`decide.Decision`).
+    policy: name, version, SHA-256 and source of the policy applied.
+    coverage_check: the primary interval's coverage on populations shaped like the data, when
+        asked (`coverage_check.CoverageCheck`).
+    equivalence: index -> its question of size at a margin (`margins.equivalence_records`).
+    conversions: two groups: d, A, delta, r and log odds ratio into one another.
+    clusters: two groups with a cluster column: ICC, design effect, cluster-bootstrap intervals.
+    samples: the analysed values, for figures; not part of the JSON.
+    """
 
     design: str
     outcome: str
@@ -322,13 +350,13 @@ class AuditResult(_Plain):
     subject_column: str | None = None
     tests: dict = field(default_factory=dict)
     pairwise: tuple[PairComparison, ...] = ()
-    influence: Any = None  # influence.Influence
-    decision: Any = None  # decide.Decision
-    policy: dict | None = None  # name, version, sha256 and source of the policy applied
-    coverage_check: Any = None  # coverage_check.CoverageCheck of the primary index, when asked
-    equivalence: dict = field(default_factory=dict)  # index -> its question of size (margins.py)
-    conversions: Any = None  # conversions.Conversions (two groups)
-    clusters: Any = None  # clusters.Clusters, when a cluster column was named (two groups)
+    influence: Influence | None = None
+    decision: Decision | None = None
+    policy: dict | None = None
+    coverage_check: CoverageCheck | None = None
+    equivalence: dict = field(default_factory=dict)
+    conversions: Conversions | None = None
+    clusters: Clusters | None = None
     samples: Samples | None = field(default=None, repr=False, compare=False)
 
     @property
