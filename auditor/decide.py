@@ -20,12 +20,13 @@ from scipy import special
 from auditor import significance
 from auditor.agreement import MATCHED, agrees, matched_method
 from auditor.magnitude import magnitude_label
+from auditor.catalogue import OUTLIER_WATCH
 from auditor.policy import DESIGNS, INDICES, Policy
 from auditor.results import AuditResult, Effect, _Plain, plain
 
 POLICY_DESIGN = {audit: table for table, audit in DESIGNS.items()}
-MEAN_INDEX = {"two_groups": "cohen_d", "paired": "d_z", "k_groups": "eta_squared",
-              "k_repeated": "generalized_eta_squared"}  # the index the outlier check watches
+# policy table -> the index the outlier check watches (catalogue.OUTLIER_WATCH)
+MEAN_INDEX = {d.policy_table: name for d, name in OUTLIER_WATCH.items()}
 
 
 @dataclass(frozen=True)

@@ -22,7 +22,8 @@ from auditor import jackknife as jk
 from auditor import jackknife_omnibus as jo
 from auditor import jackknife_signed_ranks as jsr
 from auditor import shifts
-from auditor import counting, kgroups, noncentral, paired, ranks
+from auditor import catalogue, counting, kgroups, noncentral, paired, ranks
+from auditor.catalogue import Design
 from auditor import parametric as par
 from auditor.parametric import Estimate
 from auditor.signed_rank_interval import paired_extras
@@ -69,60 +70,51 @@ def _two_a_minus_one(a: np.ndarray) -> np.ndarray:
     return 2.0 * a - 1.0
 
 
+def _spec(design: Design, name: str, estimate, values, *function, **functions) -> EffectSpec:
+    """The registry's entry for `name`: its functions, with its family, no-effect value, range,
+    sign and assumptions from the catalogue (`catalogue.py`)."""
+    record = catalogue.index(design, name)
+    return EffectSpec(name, record.family, record.null_value, record.bounds, record.signed,
+                      record.assumes, estimate, values, *function, **functions)
+
+
 def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
     """Effects for two independent groups; `reference` is the group whose SD scales Glass's
     delta (1 = B, 0 = A)."""
     glass_est = partial(par.glass_delta, reference=reference)
     glass_val = partial(par.glass_delta_values, reference=reference)
     glass_counts = partial(counting.glass_delta_counts, reference=reference)
-    normal_eq = "normal distributions with equal variances"
+    spec = partial(_spec, Design.TWO_INDEPENDENT)
     return (
-        EffectSpec("mean_difference", "mean", 0.0, None, True,
-                   "interval: near-normal means (large n or normal data); unequal variances allowed",
-                   par.mean_difference, par.mean_difference_values, jk.mean_difference,
-                   counting.mean_difference_counts),
-        EffectSpec("cohen_d", "standardized_mean", 0.0, None, True, normal_eq,
-                   par.cohen_d, par.cohen_d_values, jk.cohen_d, counting.cohen_d_counts,
-                   holds_null=par.noncentral_t_holds_zero),
-        EffectSpec("hedges_g", "standardized_mean", 0.0, None, True,
-                   normal_eq + "; corrects d's small-sample bias", par.hedges_g, par.hedges_g_values,
-                   jk.hedges_g, counting.hedges_g_counts, holds_null=par.noncentral_t_holds_zero),
-        EffectSpec("glass_delta", "standardized_mean", 0.0, None, True,
-                   "normal data; only the reference group's SD scales the difference",
-                   glass_est, glass_val, partial(jk.glass_delta, reference=reference), glass_counts),
-        EffectSpec("d_unpooled", "standardized_mean", 0.0, None, True,
-                   "normal data; unequal variances allowed", par.d_unpooled, par.d_unpooled_values,
-                   jk.d_unpooled, counting.d_unpooled_counts),
-        EffectSpec("robust_d", "standardized_mean", 0.0, None, True,
-                   "symmetric data with possible heavy tails or outliers (20% trimmed)",
-                   par.robust_d, par.robust_d_values, jk.robust_d, counting.robust_d_counts),
-        EffectSpec("prob_superiority", "dominance", 0.5, (0.0, 1.0), False,
-                   "independent observations only (ordinal outcome is enough)",
-                   with_extras(ranks.prob_superiority, dominance_extras("prob_superiority")),
-                   ranks.prob_superiority_values, jk.prob_superiority,
-                   ranks.prob_superiority_counts, degenerate=ranks.separation,
-                   holds_null=dominance_holds_null("prob_superiority")),
-        EffectSpec("cliff_delta", "dominance", 0.0, (-1.0, 1.0), True,
-                   "independent observations only (ordinal outcome is enough)",
-                   with_extras(ranks.cliff_delta, dominance_extras("cliff_delta")),
-                   ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
-                   ("prob_superiority", _two_a_minus_one), ranks.separation,
-                   dominance_holds_null("cliff_delta")),
-        EffectSpec("rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
-                   "independent observations only (ordinal outcome is enough)",
-                   with_extras(ranks.rank_biserial, dominance_extras("rank_biserial")),
-                   ranks.rank_biserial_values, jk.rank_biserial,
-                   ranks.cliff_delta_counts, ("prob_superiority", _two_a_minus_one),
-                   ranks.separation, dominance_holds_null("rank_biserial")),
-        EffectSpec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
-                   "independent observations; depends on N as well as on the effect",
-                   with_extras(ranks.r_from_z, dominance_extras("r_from_z")),
-                   ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts,
-                   degenerate=ranks.separation, holds_null=dominance_holds_null("r_from_z")),
-        EffectSpec("hodges_lehmann", "shift", 0.0, None, True,
-                   "interval: the two distributions differ only by a shift",
-                   ranks.hodges_lehmann, ranks.hodges_lehmann_values,
-                   shifts.hodges_lehmann_without_each, shifts.hodges_lehmann_by_counts),
+        spec("mean_difference", par.mean_difference, par.mean_difference_values,
+             jk.mean_difference, counting.mean_difference_counts),
+        spec("cohen_d", par.cohen_d, par.cohen_d_values, jk.cohen_d, counting.cohen_d_counts,
+             holds_null=par.noncentral_t_holds_zero),
+        spec("hedges_g", par.hedges_g, par.hedges_g_values, jk.hedges_g,
+             counting.hedges_g_counts, holds_null=par.noncentral_t_holds_zero),
+        spec("glass_delta", glass_est, glass_val, partial(jk.glass_delta, reference=reference),
+             glass_counts),
+        spec("d_unpooled", par.d_unpooled, par.d_unpooled_values, jk.d_unpooled,
+             counting.d_unpooled_counts),
+        spec("robust_d", par.robust_d, par.robust_d_values, jk.robust_d,
+             counting.robust_d_counts),
+        spec("prob_superiority",
+             with_extras(ranks.prob_superiority, dominance_extras("prob_superiority")),
+             ranks.prob_superiority_values, jk.prob_superiority, ranks.prob_superiority_counts,
+             degenerate=ranks.separation, holds_null=dominance_holds_null("prob_superiority")),
+        spec("cliff_delta", with_extras(ranks.cliff_delta, dominance_extras("cliff_delta")),
+             ranks.cliff_delta_values, jk.cliff_delta, ranks.cliff_delta_counts,
+             ("prob_superiority", _two_a_minus_one), ranks.separation,
+             dominance_holds_null("cliff_delta")),
+        spec("rank_biserial", with_extras(ranks.rank_biserial, dominance_extras("rank_biserial")),
+             ranks.rank_biserial_values, jk.rank_biserial, ranks.cliff_delta_counts,
+             ("prob_superiority", _two_a_minus_one), ranks.separation,
+             dominance_holds_null("rank_biserial")),
+        spec("r_from_z", with_extras(ranks.r_from_z, dominance_extras("r_from_z")),
+             ranks.r_from_z_values, jk.r_from_z, ranks.r_from_z_counts,
+             degenerate=ranks.separation, holds_null=dominance_holds_null("r_from_z")),
+        spec("hodges_lehmann", ranks.hodges_lehmann, ranks.hodges_lehmann_values,
+             shifts.hodges_lehmann_without_each, shifts.hodges_lehmann_by_counts),
     )
 
 
@@ -135,40 +127,24 @@ def _pair_estimate(fn, digits):
 def paired_effects(digits: int = 12) -> tuple[EffectSpec, ...]:
     """Effects for two conditions on the same participants; differences are rounded to `digits`
     decimal places before signs and ranks are taken (see `paired.differences`)."""
-    def spec(name, family, null, bounds, signed, assumes, est, values, fast=None, signs=False):
+    def spec(name, est, values, fast=None, signs=False):
         estimate = _pair_estimate(est, digits)
         if name in ("ps_dep", "matched_rank_biserial", "r_from_z"):
             estimate = with_extras(estimate, paired_extras(name, digits))
-        return EffectSpec(name, family, null, bounds, signed, assumes,
-                          estimate, partial(values, digits=digits),
-                          None if fast is None else partial(fast, digits=digits),
-                          degenerate=partial(paired.one_signed, digits=digits) if signs else None)
-    normal_d = "normally distributed differences"
+        return _spec(Design.PAIRED, name, estimate, partial(values, digits=digits),
+                     None if fast is None else partial(fast, digits=digits),
+                     degenerate=partial(paired.one_signed, digits=digits) if signs else None)
     return (
-        spec("mean_difference", "mean", 0.0, None, True,
-             "interval: near-normal differences (or large n)",
-             paired.mean_difference, paired.mean_difference_values, jk.paired_mean_difference),
-        spec("d_z", "standardized_mean", 0.0, None, True, normal_d + "; scaled by SD of differences",
-             paired.d_z, paired.d_z_values, jk.paired_d_z),
-        spec("d_av", "standardized_mean", 0.0, None, True,
-             "near-normal conditions; scaled by the average of the two SDs",
-             paired.d_av, paired.d_av_values, jk.paired_d_av),
-        spec("d_rm", "standardized_mean", 0.0, None, True,
-             "near-normal conditions; d_z rescaled by the A-B correlation",
-             paired.d_rm, paired.d_rm_values, jk.paired_d_rm),
-        spec("ps_dep", "dominance", 0.5, (0.0, 1.0), False,
-             "pairs independent of each other; signs only", paired.ps_dep, paired.ps_dep_values,
-             jk.paired_ps_dep),
-        spec("matched_rank_biserial", "dominance", 0.0, (-1.0, 1.0), True,
-             "pairs independent; differences comparable in size (signed ranks)",
-             paired.matched_rank_biserial, paired.matched_rank_biserial_values,
-             jsr.matched_rank_biserial, signs=True),
-        spec("r_from_z", "dominance", 0.0, (-1.0, 1.0), True,
-             "signed-rank z; depends on N as well as on the effect",
-             paired.r_from_z, paired.r_from_z_values, jsr.r_from_z, signs=True),
-        spec("hodges_lehmann", "shift", 0.0, None, True,
-             "interval: differences symmetric about their centre",
-             paired.hodges_lehmann, paired.hodges_lehmann_values,
+        spec("mean_difference", paired.mean_difference, paired.mean_difference_values,
+             jk.paired_mean_difference),
+        spec("d_z", paired.d_z, paired.d_z_values, jk.paired_d_z),
+        spec("d_av", paired.d_av, paired.d_av_values, jk.paired_d_av),
+        spec("d_rm", paired.d_rm, paired.d_rm_values, jk.paired_d_rm),
+        spec("ps_dep", paired.ps_dep, paired.ps_dep_values, jk.paired_ps_dep),
+        spec("matched_rank_biserial", paired.matched_rank_biserial,
+             paired.matched_rank_biserial_values, jsr.matched_rank_biserial, signs=True),
+        spec("r_from_z", paired.r_from_z, paired.r_from_z_values, jsr.r_from_z, signs=True),
+        spec("hodges_lehmann", paired.hodges_lehmann, paired.hodges_lehmann_values,
              shifts.paired_hodges_lehmann_without_each),
     )
 
@@ -216,40 +192,31 @@ def _noncentral(point: Callable[..., Estimate], interval: Callable[..., Estimate
 
 def k_independent_effects() -> tuple[EffectSpec, ...]:
     """Omnibus effects for three or more independent groups."""
+    spec = partial(_spec, Design.K_INDEPENDENT)
     return (
-        EffectSpec("epsilon_squared_h", "variance_explained", 0.0, (0.0, 1.0), False,
-                   "independent observations (ranks only)",
-                   _noncentral(kgroups.epsilon_squared_h, noncentral.epsilon_squared_h_interval,
-                               own=False), kgroups.epsilon_squared_h_values,
-                   jo.epsilon_squared_h),
-        EffectSpec("eta_squared_h", "variance_explained", 0.0, None, False,
-                   "independent observations (ranks only); can fall below zero",
-                   _omnibus(kgroups.eta_squared_h), kgroups.eta_squared_h_values,
-                   jo.eta_squared_h),
-        EffectSpec("eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
-                   "normal groups with equal variances; biased upward in small samples",
-                   _noncentral(kgroups.eta_squared, noncentral.eta_squared_interval, own=True),
-                   kgroups.eta_squared_values,
-                   jo.eta_squared),
-        EffectSpec("omega_squared", "variance_explained", 0.0, None, False,
-                   "normal groups with equal variances; can fall below zero",
-                   _noncentral(kgroups.omega_squared, noncentral.omega_squared_interval,
-                               own=True), kgroups.omega_squared_values,
-                   jo.omega_squared),
+        spec("epsilon_squared_h",
+             _noncentral(kgroups.epsilon_squared_h, noncentral.epsilon_squared_h_interval,
+                         own=False), kgroups.epsilon_squared_h_values, jo.epsilon_squared_h),
+        spec("eta_squared_h", _omnibus(kgroups.eta_squared_h), kgroups.eta_squared_h_values,
+             jo.eta_squared_h),
+        spec("eta_squared",
+             _noncentral(kgroups.eta_squared, noncentral.eta_squared_interval, own=True),
+             kgroups.eta_squared_values, jo.eta_squared),
+        spec("omega_squared",
+             _noncentral(kgroups.omega_squared, noncentral.omega_squared_interval, own=True),
+             kgroups.omega_squared_values, jo.omega_squared),
     )
 
 
 def k_repeated_effects() -> tuple[EffectSpec, ...]:
     """Omnibus effects for three or more conditions on the same participants."""
+    spec = partial(_spec, Design.K_REPEATED)
     return (
-        EffectSpec("kendall_w", "agreement", 0.0, (0.0, 1.0), False,
-                   "participants independent of each other (ranks within participant)",
-                   _noncentral(kgroups.kendall_w, noncentral.kendall_w_interval, own=False,
-                               rows=True), kgroups.kendall_w_values, jo.kendall_w),
-        EffectSpec("generalized_eta_squared", "variance_explained", 0.0, (0.0, 1.0), False,
-                   "normal data; sphericity for the F test beside it",
-                   _rows_omnibus(kgroups.generalized_eta_squared),
-                   kgroups.generalized_eta_squared_values, jo.generalized_eta_squared),
+        spec("kendall_w",
+             _noncentral(kgroups.kendall_w, noncentral.kendall_w_interval, own=False, rows=True),
+             kgroups.kendall_w_values, jo.kendall_w),
+        spec("generalized_eta_squared", _rows_omnibus(kgroups.generalized_eta_squared),
+             kgroups.generalized_eta_squared_values, jo.generalized_eta_squared),
     )
 
 

@@ -38,6 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from auditor.catalogue import AT_ONE_HALF
 from auditor.render import num, pval
 from auditor.results import AuditResult, Effect
 
@@ -92,7 +93,7 @@ PANELS = (  # intervals figure: (title, families)
     ("in outcome units", ("mean", "shift")),
     ("omnibus indices", ("variance_explained", "agreement")),
 )
-CENTRED = {"prob_superiority", "ps_dep"}  # no effect at 0.5: drawn as value - 0.5
+CENTRED = AT_ONE_HALF  # no effect at 0.5: drawn as value - 0.5
 
 
 @dataclass(frozen=True)

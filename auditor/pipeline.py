@@ -11,7 +11,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from auditor import __version__, diagnostics, kgroups, paired, rationale, significance
+from auditor import (__version__, catalogue, diagnostics, kgroups, paired, rationale,
+                     significance)
 from auditor.decide import (MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows,
                             test_matched_effect)
 from auditor.design import (Groups, Repeated, independent_groups, is_missing, long_repeated,
@@ -32,12 +33,8 @@ from auditor.results import (AuditResult, Diagnostics, Effect, PairComparison, S
                              Settings)
 
 SCOPES = ("full", "screen")
-SCREEN_COMPANIONS = {  # design -> (mean-based, rank-based) index a screen row shows beside the primary
-    "two_independent": ("cohen_d", "prob_superiority"),
-    "paired": ("d_z", "ps_dep"),
-    "k_independent": ("eta_squared", "epsilon_squared_h"),
-    "k_repeated": ("generalized_eta_squared", "kendall_w"),
-}
+# design -> (mean-based, rank-based) index a screen row shows beside the primary (catalogue.py)
+SCREEN_COMPANIONS = {d.value: pair for d, pair in catalogue.SCREEN_COMPANIONS.items()}
 DEFAULT_SEED = 20240917
 DEFAULT_RESAMPLES = 2000
 DEFAULT_LEVEL = 0.95

@@ -23,15 +23,11 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from auditor.catalogue import Design, compares
 from auditor.errors import AuditError
 from auditor.magnitude import Benchmarks
 
-DESIGNS = {  # policy table -> audit design
-    "two_groups": "two_independent",
-    "paired": "paired",
-    "k_groups": "k_independent",
-    "k_repeated": "k_repeated",
-}
+DESIGNS = {d.policy_table: d.value for d in Design}  # policy table -> audit design
 
 CHECKS = {  # the kinds of failed check each design can branch on
     "two_groups": ("small_sample", "heavy_ties", "outliers", "non_normal", "unequal_spread"),
@@ -40,24 +36,7 @@ CHECKS = {  # the kinds of failed check each design can branch on
     "k_repeated": ("small_sample", "heavy_ties", "outliers", "non_normal"),
 }
 
-INDICES = {  # design -> index -> what it compares
-    "two_groups": {
-        "mean_difference": "means", "cohen_d": "means", "hedges_g": "means",
-        "glass_delta": "means", "d_unpooled": "means", "robust_d": "trimmed means",
-        "prob_superiority": "ranks", "cliff_delta": "ranks", "rank_biserial": "ranks",
-        "r_from_z": "ranks", "hodges_lehmann": "ranks",
-    },
-    "paired": {
-        "mean_difference": "means", "d_z": "means", "d_av": "means", "d_rm": "means",
-        "ps_dep": "signs", "matched_rank_biserial": "ranks", "r_from_z": "ranks",
-        "hodges_lehmann": "ranks",
-    },
-    "k_groups": {
-        "epsilon_squared_h": "ranks", "eta_squared_h": "ranks", "eta_squared": "means",
-        "omega_squared": "means",
-    },
-    "k_repeated": {"kendall_w": "ranks", "generalized_eta_squared": "means"},
-}
+INDICES = compares()  # policy table -> index -> what it compares (catalogue.py)
 
 TESTS = {  # design -> test -> what it compares
     "two_groups": {"student_t": "means", "welch_t": "means", "permutation_mean": "means",

@@ -7,6 +7,7 @@ so a reader can find each one in the JSON; the tests check that they match.
 
 from __future__ import annotations
 
+from auditor.catalogue import CATALOGUE, OUTLIER_WATCH, as_design, index, labels
 from auditor.policy import Policy
 
 CAUTION = (
@@ -15,17 +16,7 @@ CAUTION = (
     " reported in your own field's literature."
 )
 
-NAMES = {
-    "mean_difference": "the mean difference", "cohen_d": "Cohen's d", "hedges_g": "Hedges' g",
-    "glass_delta": "Glass's delta", "d_unpooled": "d with unpooled SDs", "robust_d": "robust d",
-    "prob_superiority": "the probability of superiority A", "cliff_delta": "Cliff's delta",
-    "rank_biserial": "the rank-biserial correlation", "r_from_z": "r = Z/sqrt(N)",
-    "hodges_lehmann": "the Hodges-Lehmann shift", "d_z": "d_z", "d_av": "d_av", "d_rm": "d_rm",
-    "ps_dep": "PS_dep", "matched_rank_biserial": "the matched-pairs rank-biserial correlation",
-    "epsilon_squared_h": "epsilon-squared (from H)", "eta_squared_h": "eta-squared (from H)",
-    "eta_squared": "eta-squared", "omega_squared": "omega-squared",
-    "kendall_w": "Kendall's W", "generalized_eta_squared": "generalized eta-squared",
-}
+NAMES = labels()  # index -> how the texts name it (catalogue.py)
 
 INTERVAL_WORDS = {
     "noncentral_t": "noncentral-t", "welch_t": "Welch t", "t": "t", "brunner_munzel":
@@ -62,52 +53,18 @@ def _percent(value: float, decimals: int) -> str:
 
 
 def meaning(name: str, value: float | None, labels: tuple[str, ...], outcome: str,
-            decimals: int) -> str:
-    """What the index's value says, in plain words."""
+            decimals: int, design: str | None = None) -> str:
+    """What the index's value says, in plain words: its reading in the catalogue (of `design`;
+    without one, of the first design that has the index)."""
     if value is None:
         return "it is undefined for these data"
     a, b = (labels + ("the second", ""))[:2]
-    v = fmt(value, decimals)
-    if name == "prob_superiority":
-        return (f"a randomly chosen participant of '{a}' has a higher {outcome} than one of"
-                f" '{b}' in {_percent(value, decimals)} of pairs (ties counted half)")
-    if name in ("cliff_delta", "rank_biserial"):
-        return (f"the share of pairs in which '{a}' is higher minus the share in which '{b}' is"
-                f" higher is {v}")
-    if name in ("cohen_d", "hedges_g"):
-        return f"the means of '{a}' and '{b}' differ by {v} pooled standard deviations"
-    if name == "glass_delta":
-        return f"the means differ by {v} standard deviations of the reference group"
-    if name == "d_unpooled":
-        return f"the means differ by {v} root-mean-square standard deviations of the two groups"
-    if name == "robust_d":
-        return (f"the 20% trimmed means differ by {v} winsorized standard deviations (scaled to"
-                " equal d for normal data)")
-    if name == "mean_difference":
-        return f"the mean of '{a}' minus the mean of '{b}' is {v} {outcome} units"
-    if name == "hodges_lehmann":
-        return f"the median of all differences '{a}' minus '{b}' is {v} {outcome} units"
-    if name == "r_from_z":
-        return f"the rank-sum z statistic divided by the square root of N is {v}"
-    if name in ("d_z",):
-        return f"the mean difference is {v} standard deviations of the differences"
-    if name == "d_av":
-        return f"the mean difference is {v} times the average of the two conditions' SDs"
-    if name == "d_rm":
-        return f"the mean difference is {v} SDs, adjusted for the correlation of the conditions"
-    if name == "ps_dep":
-        return (f"'{a}' is higher than '{b}' for {_percent(value, decimals)} of participants"
-                " (no change counted half)")
-    if name == "matched_rank_biserial":
-        return (f"the signed ranks of the differences favour '{a}' over '{b}' by {v} (share of"
-                " the rank sum from increases minus share from decreases)")
-    if name in ("eta_squared", "omega_squared", "generalized_eta_squared"):
-        return f"the conditions account for {_percent(value, decimals)} of the variance"
-    if name in ("epsilon_squared_h", "eta_squared_h"):
-        return f"group membership accounts for {_percent(value, decimals)} of the rank variance"
-    if name == "kendall_w":
-        return f"the participants' orderings of the conditions agree to W = {v} (0 none, 1 all alike)"
-    return f"its value is {v}"
+    record = (index(design, name) if design is not None
+              else next((i for i in CATALOGUE if i.name == name), None))
+    if record is None:
+        return f"its value is {fmt(value, decimals)}"
+    return record.reading.format(a=a, b=b, v=fmt(value, decimals), outcome=outcome,
+                                 pct=_percent(value, decimals))
 
 
 def _interval_text(interval: dict, decimals: int) -> str:
@@ -189,7 +146,7 @@ def rationale(result, decision, policy: Policy) -> str:
     estimate = (f"{NAMES[decision.primary][0].upper()}{NAMES[decision.primary][1:]} ="
                 f" {fmt(primary.estimate, dec)}"
                 f" ({_interval_text(decision.interval, dec)}{size}): "
-                f"{meaning(decision.primary, primary.estimate, labels, result.outcome, dec)}.")
+                f"{meaning(decision.primary, primary.estimate, labels, result.outcome, dec, result.design)}.")
     test = f"Test: {_test_text(decision.test, dec)}."
     size = size_text(result, decision.primary, dec)
     return " ".join([why, estimate, test] + ([size] if size else []))
@@ -345,8 +302,7 @@ def _cluster_remarks(result, decision, dec: int) -> list[str]:
 
 
 def _mean_index(result) -> str:
-    return {"two_independent": "cohen_d", "paired": "d_z", "k_independent": "eta_squared",
-            "k_repeated": "generalized_eta_squared"}[result.design]
+    return OUTLIER_WATCH[as_design(result.design)]
 
 
 def methods_sentence(result, decision, policy: Policy) -> str:

@@ -42,6 +42,7 @@ from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
 from auditor.decide import quoted_interval
 from auditor.sources import Source
 from auditor.pipeline import SCREEN_COMPANIONS
+from auditor.catalogue import AT_ONE_HALF
 from auditor.policy import INDICES
 from auditor.results import SCHEMA_VERSION
 
@@ -447,8 +448,7 @@ def _sort_value(row: dict, key: str, position: int):
         return (0, position)
     value = row.get(key)
     if key == "estimate" and value is not None:
-        value = -abs(value - (0.5 if row.get("primary") in ("prob_superiority", "ps_dep")
-                              else 0.0))
+        value = -abs(value - (0.5 if row.get("primary") in AT_ONE_HALF else 0.0))
     if key == "outcome":
         return (0, str(value))
     if key == "fragility" and not value:  # 0: the interval already holds the null; None: no count
