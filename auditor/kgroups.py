@@ -372,19 +372,6 @@ def mauchly(x: np.ndarray) -> dict:
 # ------------------------------------------------------------------ pairwise follow-ups
 
 
-def holm(pvalues) -> list[float | None]:
-    """Holm's step-down adjustment (Holm 1979): sort p ascending, multiply the i-th (0-based) by
-    (m - i), enforce monotonicity, cap at 1. None stays None."""
-    present = [(p, i) for i, p in enumerate(pvalues) if p is not None]
-    m = len(present)
-    adjusted: list[float | None] = [None] * len(pvalues)
-    running = 0.0
-    for rank, (p, i) in enumerate(sorted(present)):
-        running = max(running, min(1.0, (m - rank) * p))
-        adjusted[i] = running
-    return adjusted
-
-
 def dunn_z(groups, i: int, j: int) -> tuple[float, float]:
     """Dunn's (1964) z for groups i and j from the pooled mid-ranks:
     z = (Rbar_i - Rbar_j) / sqrt((N(N+1)/12 - sum(t^3 - t) / (12 (N - 1))) (1/n_i + 1/n_j));

@@ -11,7 +11,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from auditor import (__version__, catalogue, diagnostics, kgroups, paired, rationale,
+from auditor import (__version__, adjust, catalogue, diagnostics, kgroups, paired, rationale,
                      significance)
 from auditor.decide import (MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows,
                             test_matched_effect)
@@ -595,7 +595,7 @@ def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy,
             dunn_p.append(None if not np.isfinite(p) else p)
             comparisons.append((i, j, pair_effects, None if not np.isfinite(z) else z))
             notes += [f"{design.labels[i]} vs {design.labels[j]}: {n}" for n in pair_notes]
-        holm = kgroups.holm(dunn_p)
+        holm = adjust.holm(dunn_p)
         pairwise = [PairComparison(design.labels[i], design.labels[j], eff, "dunn_z", z, p, ph)
                     for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
     diag = diagnostics.k_screen(design.labels, groups, design.rows, brief=scope == "screen")
@@ -654,7 +654,7 @@ def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progre
             wil_p.append(w["p"])
             comparisons.append((i, j, pair_effects, w["statistic"]))
             notes += [f"{labels[i]} vs {labels[j]}: {n}" for n in pair_notes]
-        holm = kgroups.holm(wil_p)
+        holm = adjust.holm(wil_p)
         pairwise = [PairComparison(labels[i], labels[j], eff, "wilcoxon_signed_rank", stat, p, ph)
                     for (i, j, eff, stat), p, ph in zip(comparisons, wil_p, holm)]
     sphericity = kgroups.mauchly(x)

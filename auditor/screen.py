@@ -42,6 +42,7 @@ from auditor.load import MISSING_MARKERS, Table, parse_numbers, read_table
 from auditor.decide import quoted_interval
 from auditor.sources import Source
 from auditor.pipeline import SCREEN_COMPANIONS
+from auditor.adjust import benjamini_hochberg, holm
 from auditor.catalogue import AT_ONE_HALF
 from auditor.policy import INDICES
 from auditor.results import SCHEMA_VERSION
@@ -408,30 +409,6 @@ def _part(table: Table, fixed: list[str], names: list[str]) -> Table:
     """The table cut down to the fixed columns and a batch's columns."""
     keep = dict.fromkeys(fixed + names)
     return dataclasses.replace(table, columns={c: table.columns[c] for c in keep})
-
-
-def holm(pvalues: list[float | None]) -> list[float | None]:
-    """Holm's step-down adjusted p-values (Holm 1979); None stays None."""
-    idx = [i for i, p in enumerate(pvalues) if p is not None]
-    m = len(idx)
-    out: list[float | None] = [None] * len(pvalues)
-    running = 0.0
-    for rank, i in enumerate(sorted(idx, key=lambda i: pvalues[i])):
-        running = max(running, min(1.0, (m - rank) * pvalues[i]))
-        out[i] = running
-    return out
-
-
-def benjamini_hochberg(pvalues: list[float | None]) -> list[float | None]:
-    """Benjamini-Hochberg adjusted p-values (Benjamini & Hochberg 1995); None stays None."""
-    idx = [i for i, p in enumerate(pvalues) if p is not None]
-    m = len(idx)
-    out: list[float | None] = [None] * len(pvalues)
-    running = 1.0
-    for rank, i in reversed(list(enumerate(sorted(idx, key=lambda i: pvalues[i]), start=1))):
-        running = min(running, pvalues[i] * m / rank)
-        out[i] = min(1.0, running)
-    return out
 
 
 @dataclasses.dataclass(frozen=True)

@@ -16,7 +16,7 @@ from hypothesis import strategies as st
 from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
-from auditor import kgroups
+from auditor import adjust
 from auditor.effects import k_independent_effects, k_repeated_effects, paired_effects
 from auditor.ranks import midranks
 
@@ -421,7 +421,7 @@ p_values = st.lists(st.one_of(st.none(), st.floats(0.0, 1.0, allow_nan=False),
 @STEADY
 @given(ps=p_values)
 def test_holm_matches_its_definition(ps):
-    got = kgroups.holm(ps)
+    got = adjust.holm(ps)
     want = holm_direct(ps)
     assert len(got) == len(ps)
     for g, w, p in zip(got, want, ps):
@@ -434,7 +434,7 @@ def test_holm_matches_its_definition(ps):
 @STEADY
 @given(ps=p_values)
 def test_holm_is_monotone_and_bounded(ps):
-    got = kgroups.holm(ps)
+    got = adjust.holm(ps)
     present = [(p, a) for p, a in zip(ps, got) if p is not None]
     for p, a in present:
         assert p <= a <= 1.0
@@ -448,14 +448,14 @@ def test_holm_is_monotone_and_bounded(ps):
 @given(ps=st.lists(st.floats(1e-12, 1.0, allow_nan=False), min_size=1, max_size=12))
 def test_holm_agrees_with_statsmodels(ps):
     _, expected, _, _ = multipletests(ps, method="holm")
-    assert kgroups.holm(ps) == pytest.approx(list(expected), rel=1e-12, abs=1e-15)
+    assert adjust.holm(ps) == pytest.approx(list(expected), rel=1e-12, abs=1e-15)
 
 
 def test_holm_small_example():
     # four p-values: 0.01 x 4 = 0.04, 0.02 x 3 = 0.06, 0.03 x 2 = 0.06, 0.04 x 1 -> 0.06 (monotone)
-    got = kgroups.holm([0.03, None, 0.01, 0.02, 0.04])
+    got = adjust.holm([0.03, None, 0.01, 0.02, 0.04])
     assert got[1] is None
     assert [got[i] for i in (0, 2, 3, 4)] == pytest.approx([0.06, 0.04, 0.06, 0.06])
-    assert kgroups.holm([0.02, 0.01, 0.04]) == pytest.approx([0.04, 0.03, 0.04])
-    assert kgroups.holm([0.5, None, 0.5]) == [1.0, None, 1.0]
-    assert kgroups.holm([]) == []
+    assert adjust.holm([0.02, 0.01, 0.04]) == pytest.approx([0.04, 0.03, 0.04])
+    assert adjust.holm([0.5, None, 0.5]) == [1.0, None, 1.0]
+    assert adjust.holm([]) == []

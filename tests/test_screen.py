@@ -21,7 +21,8 @@ from hypothesis import strategies as st
 from auditor.cli import main
 from auditor.effects import two_group_effects
 from auditor.policy import default_policy
-from auditor.screen import (FIELDS, MULTIPLE_OUTCOMES_NOTE, SORT_KEYS, benjamini_hochberg, holm,
+from auditor.adjust import benjamini_hochberg, holm
+from auditor.screen import (FIELDS, MULTIPLE_OUTCOMES_NOTE, SORT_KEYS,
                             outcome_seed, screen)
 from cli_checks import one_line_error as _one_line_error
 

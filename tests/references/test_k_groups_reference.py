@@ -38,7 +38,7 @@ from statsmodels.stats.anova import AnovaRM
 from statsmodels.stats.multitest import multipletests
 from statsmodels.stats.oneway import anova_oneway
 
-from auditor import diagnostics, kgroups
+from auditor import adjust, diagnostics, kgroups
 from auditor.pipeline import audit
 from tests.references.common import quiet_pingouin as _quiet_pingouin
 
@@ -255,7 +255,7 @@ def test_holm_on_dunn_p_values_against_statsmodels(name):
     _, groups = groups_of(name)
     ps = [kgroups.dunn_z(groups, i, j)[1] for i, j in itertools.combinations(range(len(groups)), 2)]
     ref = multipletests(ps, method="holm")[1]  # statsmodels
-    np.testing.assert_allclose(kgroups.holm(ps), ref, rtol=1e-12)
+    np.testing.assert_allclose(adjust.holm(ps), ref, rtol=1e-12)
 
 
 def test_holm_with_missing_and_tied_p_values():
@@ -264,7 +264,7 @@ def test_holm_with_missing_and_tied_p_values():
     for _ in range(20):
         ps = list(rng.uniform(0, 0.2, 7)) + [0.03, 0.03, 1.0]
         with_none = ps[:3] + [None] + ps[3:] + [None]
-        got = kgroups.holm(with_none)
+        got = adjust.holm(with_none)
         ref = multipletests(ps, method="holm")[1]  # statsmodels
         assert got[3] is None and got[-1] is None
         np.testing.assert_allclose([g for g in got if g is not None], ref, rtol=1e-12)
