@@ -30,14 +30,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from auditor.resampling import bca_interval, chunk_size
-from auditor.results import Interval, _Plain, plain
+from auditor.results import Interval, Record, plain
 
 CLUSTER_STREAM = 9  # spawn key of the random stream the cluster bootstrap draws from
 FEW_CLUSTERS = 10  # fewer clusters than this in a group: the cluster bootstrap is rough (common practice)
 
 
 @dataclass(frozen=True)
-class ClusterGroup(_Plain):
+class ClusterGroup(Record):
     """One group's clusters: how many, how many cases, and the sizes of its clusters."""
 
     label: str
@@ -49,7 +49,7 @@ class ClusterGroup(_Plain):
 
 
 @dataclass(frozen=True)
-class IntraclassCorrelation(_Plain):
+class IntraclassCorrelation(Record):
     """The one-way ANOVA estimate of the intraclass correlation and its parts.
 
     icc = (MSB - MSW) / (MSB + (n0 - 1) MSW), where MSB is the mean square between clusters
@@ -69,7 +69,7 @@ class IntraclassCorrelation(_Plain):
 
 
 @dataclass(frozen=True)
-class ClusterInterval(_Plain):
+class ClusterInterval(Record):
     """An index with its cluster-bootstrap interval, or None with the reason."""
 
     index: str
@@ -80,7 +80,7 @@ class ClusterInterval(_Plain):
 
 
 @dataclass(frozen=True)
-class Clusters(_Plain):
+class Clusters(Record):
     """What the audit found about the clustering of the cases (see the module docstring).
 
     `design_effect` = 1 + (sum_c n_c^2 / N - 1) max(icc, 0), the variance of a mean of all N

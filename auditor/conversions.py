@@ -29,7 +29,7 @@ from dataclasses import dataclass
 from scipy import special
 
 from auditor.errors import UndefinedEffectWarning
-from auditor.results import _Plain
+from auditor.results import Record
 
 SQRT2 = math.sqrt(2.0)
 LOGISTIC_SCALE = math.pi / math.sqrt(3.0)  # SD of the standard logistic distribution
@@ -240,7 +240,7 @@ def log_odds_to_d(log_odds: float) -> float:
 
 
 @dataclass(frozen=True)
-class ScaleLink(_Plain):
+class ScaleLink(Record):
     """One conversion: `target` computed from `source` by `formula`, exact when `exact_if`
     holds (reference: `reference`). `direct` is `target` estimated directly from the data, when
     it was; `gap` = direct - value, and `flagged` is True when |gap| >= `limit`. `value` is None
@@ -264,7 +264,7 @@ class ScaleLink(_Plain):
 
 
 @dataclass(frozen=True)
-class Conversions(_Plain):
+class Conversions(Record):
     """Every conversion of an observed d and A, with its gap to the directly estimated index.
 
     `cohen_d` (pooled SD), `prob_superiority` and `cliff_delta` are the direct estimates the

@@ -105,7 +105,7 @@ def _trimmed_by_counts(x_sorted: np.ndarray, order: np.ndarray | None,
     """Function of counts (m, n) in the sample's order -> (trimmed mean, winsorized variance)
     of each resample, for values already centred and sorted (`order` maps sorted to sample)."""
     n = x_sorted.size
-    g = par._trim_count(n, proportion)
+    g = par.trim_count(n, proportion)
     squares = x_sorted * x_sorted
 
     def statistic(c):

@@ -129,7 +129,7 @@ from auditor.moments import mean_var
 from auditor.parametric import ROBUST_SCALE, ROBUST_TRIM
 from auditor.ranks import pairwise_median
 from auditor.resampling import bca_interval, resample_units
-from auditor.results import _Plain
+from auditor.results import Record
 
 METHODS = ("analytic", "bca_bootstrap")
 DESIGNS = ("two_independent", "paired", "k_independent", "k_repeated")
@@ -165,7 +165,7 @@ Progress = Callable[[int, int], None] | None
 
 
 @dataclass(frozen=True)
-class PopulationValue(_Plain):
+class PopulationValue(Record):
     """The value of an index in the smoothed populations, how it was obtained, or why it is not
     available. `method` is "exact" or "monte carlo (<draws> draws, SE <se>)"; `se` and `draws`
     are set for Monte Carlo values only."""
@@ -180,7 +180,7 @@ class PopulationValue(_Plain):
 
 
 @dataclass(frozen=True)
-class CoverageCheck(_Plain):
+class CoverageCheck(Record):
     """Estimated coverage of one interval method for one index, in populations built from the
     data (see the module docstring).
 

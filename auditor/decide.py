@@ -22,7 +22,7 @@ from auditor.agreement import MATCHED, agrees, matched_method
 from auditor.magnitude import magnitude_label
 from auditor.catalogue import OUTLIER_WATCH
 from auditor.policy import DESIGNS, INDICES, Policy
-from auditor.results import AuditResult, Effect, _Plain, plain
+from auditor.results import AuditResult, Effect, Record, plain
 
 POLICY_DESIGN = {audit: table for table, audit in DESIGNS.items()}
 # policy table -> the index the outlier check watches (catalogue.OUTLIER_WATCH)
@@ -30,7 +30,7 @@ MEAN_INDEX = {d.policy_table: name for d, name in OUTLIER_WATCH.items()}
 
 
 @dataclass(frozen=True)
-class Evidence(_Plain):
+class Evidence(Record):
     """One number a check looked at: `value` compared with `limit` by `comparison`."""
 
     subject: str  # the group, the differences, the pooled data ...
@@ -42,7 +42,7 @@ class Evidence(_Plain):
 
 
 @dataclass(frozen=True)
-class Reason(_Plain):
+class Reason(Record):
     rule: str
     fired: bool
     evidence: tuple[Evidence, ...]
@@ -50,7 +50,7 @@ class Reason(_Plain):
 
 
 @dataclass(frozen=True)
-class Decision(_Plain):
+class Decision(Record):
     branch: str
     primary: str
     also_report: tuple[str, ...]

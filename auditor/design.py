@@ -122,7 +122,7 @@ def is_missing(label: str) -> bool:
 _is_missing = is_missing
 
 
-def _levels(labels: list[str]) -> list[str]:
+def ordered_levels(labels: list[str]) -> list[str]:
     return list(dict.fromkeys(lab for lab in labels if not _is_missing(lab)))
 
 
@@ -176,7 +176,7 @@ def independent_groups(table: Table, outcome: str, group: str,
     if outcome == group:
         raise DesignError(f"the outcome and the group are the same column '{outcome}'")
     labels_all = [lab.strip() for lab in table.columns[group]]
-    chosen = _choose_levels(_levels(labels_all), groups, table.path, group, "--groups")
+    chosen = choose_levels(ordered_levels(labels_all), groups, table.path, group, "--groups")
 
     values, reasons = parse_numbers(table.columns[outcome], what=f"{outcome}")
     excluded: list[Exclusion] = []
@@ -236,7 +236,7 @@ def two_groups(table: Table, outcome: str, group: str, groups: list[str] | None 
     return design
 
 
-def _choose_levels(levels: list[str], chosen: list[str] | None, path: str, column: str,
+def choose_levels(levels: list[str], chosen: list[str] | None, path: str, column: str,
                    option: str) -> list[str]:
     shown = ", ".join(f"'{lev}'" for lev in levels[:12]) + (" ..." if len(levels) > 12 else "")
     if chosen is None:
@@ -323,7 +323,7 @@ def long_repeated(table: Table, outcome: str, group: str, subject: str,
         raise DesignError("--outcome, --group and --subject must name three different columns")
     labels_all = [lab.strip() for lab in table.columns[group]]
     ids = [s.strip() for s in table.columns[subject]]
-    chosen = _choose_levels(_levels(labels_all), groups, table.path, group, "--groups")
+    chosen = choose_levels(ordered_levels(labels_all), groups, table.path, group, "--groups")
     values, reasons = parse_numbers(table.columns[outcome], what=outcome)
     index = {lab: k for k, lab in enumerate(chosen)}
     excluded: list[Exclusion] = []

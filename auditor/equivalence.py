@@ -72,7 +72,7 @@ from auditor import paired, ranks
 from auditor.moments import mean_var
 from auditor.parametric import (cohen_d_values, hedges_correction, mean_difference_values,
                                 noncentral_t_cdf, noncentral_t_limits, welch_df)
-from auditor.results import _Plain
+from auditor.results import Record
 
 AT_LEAST_MARGIN = "at_least_margin"
 SMALLER_THAN_MARGIN = "smaller_than_margin"
@@ -88,7 +88,7 @@ VERDICTS = {
 
 
 @dataclass(frozen=True)
-class EquivalenceResult(_Plain):
+class EquivalenceResult(Record):
     """Two one-sided tests of one index against the bounds (margin_low, margin_high).
 
     p-values as in the module docstring; `interval_low`/`interval_high` at `interval_level` =
@@ -410,7 +410,7 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
         t_low = (A-hat - low) / se,  t_high = (A-hat - high) / se,
         p_lower = P(T_nu >= t_low),  p_upper = P(T_nu <= t_high),
     with A-hat, se^2 = S_A^2 / (n_A n_B^2) + S_B^2 / (n_B n_A^2) from the placements and the
-    Satterthwaite-type nu (`ranks._brunner_munzel_parts`, the same numbers as
+    Satterthwaite-type nu (`ranks.brunner_munzel_parts`, the same numbers as
     `ranks.prob_superiority`). The bounds are on A's scale: a margin m gives (1/2 - m, 1/2 + m),
     so m must be at most 1/2; explicit bounds must satisfy 0 <= low < 1/2 < high <= 1. The
     1 - 2 alpha interval A-hat -/+ t(1 - alpha; nu) se is clipped to [0, 1]. p_difference is the
@@ -429,7 +429,7 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
     if reason:
         return make(None, reason)
     with np.errstate(all="ignore"):
-        a_hat, var, df = ranks._brunner_munzel_parts(a, b)
+        a_hat, var, df = ranks.brunner_munzel_parts(a, b)
     if not var > 0:
         why = ("the groups do not overlap (complete separation)" if a_hat in (0.0, 1.0)
                else "the placements do not vary within either group")

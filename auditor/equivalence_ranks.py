@@ -204,7 +204,7 @@ def signed_rank_tails(e: np.ndarray) -> tuple[float, float, float, str]:
     Exact: Wilcoxon's untied null distribution (`paired.signed_rank_null_pmf`). Normal:
     z = (t - n(n+1)/4) / sqrt(n(n+1)(2n+1)/24 - sum(t^3 - t)/48), n the non-zero count, no
     continuity correction (as `paired.wilcoxon_z_values`). Requires n >= 1."""
-    r_plus, _, tie_term, n = (float(np.asarray(v)) for v in paired._signed_rank_parts(e))
+    r_plus, _, tie_term, n = (float(np.asarray(v)) for v in paired.signed_rank_parts(e))
     n = int(n)
     if signed_rank_is_exact(n, e.size, tie_term):
         pmf = paired.signed_rank_null_pmf(n)

@@ -49,7 +49,7 @@ import numpy as np
 from auditor.effects import EffectSpec
 from auditor.magnitude import DEFAULT_BENCHMARKS, Benchmarks, magnitude_levels
 from auditor.resampling import leave_one_out_units
-from auditor.results import Effect, _Plain, plain
+from auditor.results import Effect, Record, plain
 
 EXACT_ALL_UNITS = 300
 EXACT_NEAR_MAX = 100
@@ -78,7 +78,7 @@ class Units:
 
 
 @dataclass(frozen=True)
-class Fragility(_Plain):
+class Fragility(Record):
     count: int | None
     rows: tuple[int, ...]
     reached: bool
@@ -87,7 +87,7 @@ class Fragility(_Plain):
 
 
 @dataclass(frozen=True)
-class EffectInfluence(_Plain):
+class EffectInfluence(Record):
     effect: str
     jackknife_se: float | None
     bias: float | None
@@ -102,7 +102,7 @@ class EffectInfluence(_Plain):
 
 
 @dataclass(frozen=True)
-class Influence(_Plain):
+class Influence(Record):
     """Summaries per effect and the per-case table, held as columns (one entry per unit, in file
     line order) so that large samples stay compact; `cases` lists it row by row."""
 

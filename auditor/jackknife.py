@@ -275,7 +275,7 @@ def _trimmed_without_each(x: np.ndarray, proportion: float = par.ROBUST_TRIM):
     the highest kept value (Wilcox 2012, sec. 3.2)."""
     n = x.size
     m = n - 1
-    g = par._trim_count(m, proportion)
+    g = par.trim_count(m, proportion)
     order = np.argsort(x, kind="stable")
     s = x[order]
     r = np.arange(n)

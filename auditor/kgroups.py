@@ -81,7 +81,7 @@ def eta_squared_h_values(*groups):
     return (kruskal_h_values(*groups) - k + 1) / (n - k)
 
 
-def _anova_parts(groups):
+def anova_parts(groups):
     sizes = [g.shape[-1] for g in groups]
     n = sum(sizes)
     origin = groups[0][..., :1]  # centre on a data value for precision
@@ -96,7 +96,7 @@ def _anova_parts(groups):
 def eta_squared_values(*groups):
     """eta^2 = SS_between / SS_total from the one-way ANOVA (Pearson's correlation ratio;
     Cohen 1988, ch. 8)."""
-    sb, sw, _, _ = _anova_parts(groups)
+    sb, sw, _, _ = anova_parts(groups)
     with np.errstate(divide="ignore", invalid="ignore"):
         return sb / (sb + sw)
 
@@ -104,7 +104,7 @@ def eta_squared_values(*groups):
 def omega_squared_values(*groups):
     """omega^2 = (SS_between - (k - 1) MS_within) / (SS_total + MS_within) (Hays 1963;
     Olejnik & Algina 2003, Table 1)."""
-    sb, sw, n, k = _anova_parts(groups)
+    sb, sw, n, k = anova_parts(groups)
     ms_within = sw / (n - k)
     with np.errstate(divide="ignore", invalid="ignore"):
         return (sb - (k - 1) * ms_within) / (sb + sw + ms_within)

@@ -184,7 +184,7 @@ def noncentral_f_tails(x: float, df1: float, df2: float, ncp: float,
 
     lambda = 0: the central F (scipy.special.fdtr / fdtrc). 0 < lambda <= LIBRARY_MAX_NCP:
     scipy.stats.ncf; where scipy returns NaN (or, with `careful`, a tail below MIXTURE_BELOW),
-    the Poisson mixture of `_ncf_poisson_mixture` below lambda = 1e6, and the large-lambda
+    the Poisson mixture of `ncf_poisson_mixture` below lambda = 1e6, and the large-lambda
     integral of `_ncf_large_ncp` above (and for every lambda > LIBRARY_MAX_NCP) when scipy gives
     NaN. `careful` is for tails reported as p-values; the interval's root-finding, which
     evaluates many tails and only needs them near alpha, leaves it off (the mixture costs about
@@ -204,7 +204,7 @@ def noncentral_f_tails(x: float, df1: float, df2: float, ncp: float,
                 not careful or min(low, high) >= MIXTURE_BELOW):
             return low, high
         if ncp < 1e6:
-            return _ncf_poisson_mixture(x, df1, df2, ncp)
+            return ncf_poisson_mixture(x, df1, df2, ncp)
         if math.isfinite(low) and math.isfinite(high):
             return low, high
     return _ncf_large_ncp(x, df1, df2, ncp)
@@ -216,7 +216,7 @@ def noncentral_f_tails(x: float, df1: float, df2: float, ncp: float,
 MIXTURE_BELOW = 1e-30
 
 
-def _ncf_poisson_mixture(x: float, df1: float, df2: float, ncp: float) -> tuple[float, float]:
+def ncf_poisson_mixture(x: float, df1: float, df2: float, ncp: float) -> tuple[float, float]:
     """(P(F <= x), P(F > x)) as the Poisson mixture of central F distributions,
     P(F <= x) = sum_j e^(-lambda/2) (lambda/2)^j / j! I_y(df1/2 + j, df2/2),
     y = df1 x / (df1 x + df2) (Johnson, Kotz & Balakrishnan 1995, ch. 30; from memory), summed
@@ -255,7 +255,7 @@ def _poisson_mixture(ncp: float, term, parts) -> tuple[float, float]:
 def _ncx2_poisson_mixture(x: float, df: float, ncp: float) -> tuple[float, float]:
     """(P(X <= x), P(X > x)) as the Poisson mixture of central chi-squared distributions,
     P(X <= x) = sum_j e^(-lambda/2) (lambda/2)^j / j! P(chi^2_(df + 2j) <= x) (Johnson, Kotz &
-    Balakrishnan 1995, ch. 29; from memory), summed in logarithms as `_ncf_poisson_mixture`
+    Balakrishnan 1995, ch. 29; from memory), summed in logarithms as `ncf_poisson_mixture`
     is. For tails scipy.special.chndtr rounds to 0 (below about 1e-23 here: 0 where the lower
     tail at (0.5, 2 df, lambda 300) is 5e-63)."""
     if not math.isfinite(x):
@@ -442,7 +442,7 @@ def _one_way_f(groups) -> tuple[float | None, int, int, int, str | None]:
             return None, df1, df2, n, "every value is equal: F and the effect size are undefined"
         return None, df1, df2, n, ("no variation within any group: F is infinite, so the"
                                    " noncentrality has no finite upper limit")
-    sb, sw, _, _ = kgroups._anova_parts(groups)
+    sb, sw, _, _ = kgroups.anova_parts(groups)
     f = float(sb / df1 / (sw / df2))
     if not math.isfinite(f):
         return None, df1, df2, n, "F is not finite in double precision"

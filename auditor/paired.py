@@ -103,7 +103,7 @@ def ps_dep_values(x, digits=12):
     return (np.sum(d > 0, axis=-1) + 0.5 * np.sum(d == 0, axis=-1)) / d.shape[-1]
 
 
-def _signed_rank_parts(d):
+def signed_rank_parts(d):
     """R+, R- and the tie term of the signed-rank statistic with zeros dropped (Wilcoxon 1945;
     zeros handled as in Wilcoxon's method, ties by mid-ranks)."""
     nonzero = d != 0
@@ -118,7 +118,7 @@ def _signed_rank_parts(d):
 
 def matched_rank_biserial_values(x, digits=12):
     """r = (R+ - R-) / (R+ + R-), zeros dropped (Kerby 2014, simple difference formula)."""
-    rp, rm, _, _ = _signed_rank_parts(differences(x, digits))
+    rp, rm, _, _ = signed_rank_parts(differences(x, digits))
     with np.errstate(divide="ignore", invalid="ignore"):
         return (rp - rm) / (rp + rm)
 
@@ -131,7 +131,7 @@ def wilcoxon_z_values(x, digits=12):
     N(N+1)(2N+1) overflows int64 from N = 1,664,510 on (the p-value and r = z / sqrt(N) came out
     undefined at 2 x 10^6 pairs). The variance is positive for every N >= 1, ties or not
     (at worst, all |d| tied, it is N(N+1)^2 / 16); NaN (undefined) only when N = 0."""
-    rp, _, tie_term, n = _signed_rank_parts(differences(x, digits))
+    rp, _, tie_term, n = signed_rank_parts(differences(x, digits))
     n = np.asarray(n, dtype=float)
     var = n * (n + 1) * (2 * n + 1) / 24.0 - tie_term / 48.0
     with np.errstate(divide="ignore", invalid="ignore"):

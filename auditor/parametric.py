@@ -152,14 +152,14 @@ def d_unpooled_values(a, b):
         return mean_difference_values(a, b) / np.sqrt((va + vb) / 2)
 
 
-def _trim_count(n: int, proportion: float = ROBUST_TRIM) -> int:
+def trim_count(n: int, proportion: float = ROBUST_TRIM) -> int:
     return int(math.floor(proportion * n))
 
 
 def trimmed_mean_values(x, proportion: float = ROBUST_TRIM):
     """Mean after removing g = floor(proportion n) values from each end (scipy.stats.trim_mean)."""
     n = x.shape[-1]
-    g = _trim_count(n, proportion)
+    g = trim_count(n, proportion)
     s = np.sort(x, axis=-1)
     return np.mean(s[..., g:n - g], axis=-1)
 
@@ -168,7 +168,7 @@ def winsorized_variance_values(x, proportion: float = ROBUST_TRIM):
     """Variance (n - 1 denominator) after replacing the g lowest values by the (g+1)-th and the
     g highest by the (n-g)-th, g = floor(proportion n) (Wilcox 2012, sec. 3.2)."""
     n = x.shape[-1]
-    g = _trim_count(n, proportion)
+    g = trim_count(n, proportion)
     s = np.sort(x, axis=-1)
     if g > 0:
         s = s.copy()

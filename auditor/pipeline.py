@@ -115,7 +115,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     level = policy.value("intervals", "level") if level is None else level
     resamples = policy.value("bootstrap", "resamples") if resamples is None else resamples
     seed = policy.value("bootstrap", "seed") if seed is None else seed
-    level, resamples = _check_settings(level, resamples, seed)
+    level, resamples = check_settings(level, resamples, seed)
     chosen = parse_group_list(groups) if isinstance(groups, str) else groups
     wide = (parse_group_list(paired_columns, "--paired") if isinstance(paired_columns, str)
             else paired_columns)
@@ -358,7 +358,7 @@ def with_coverage_check(result: AuditResult, policy: Policy,
     return dataclasses.replace(result, decision=decision)
 
 
-def _check_settings(level: float, resamples: int, seed: int) -> tuple[float, int]:
+def check_settings(level: float, resamples: int, seed: int) -> tuple[float, int]:
     level = float(level)
     if not 0.5 <= level < 1.0:
         raise DesignError(f"confidence level {level} is out of range; use a value in [0.5, 1), e.g. 0.95")

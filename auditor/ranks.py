@@ -254,7 +254,7 @@ def hodges_lehmann(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
 # ------------------------------------------------------------------ A with its interval
 
 
-def _brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
+def brunner_munzel_parts(a: np.ndarray, b: np.ndarray):
     """A-hat, its variance estimate and the Brunner-Munzel degrees of freedom.
 
     With placements P_Ai = R_Ai - R^(A)_Ai (pooled minus internal mid-rank: the number of B values
@@ -351,7 +351,7 @@ def prob_superiority(a: np.ndarray, b: np.ndarray, level: float) -> Estimate:
     Assumes only independent observations; unequal spreads and shapes are allowed (Brunner &
     Munzel 2000). When the groups do not overlap the variance estimate is zero and the interval
     is undefined (null with a reason)."""
-    a_hat, var, df = _brunner_munzel_parts(a, b)
+    a_hat, var, df = brunner_munzel_parts(a, b)
     if math.isnan(var):
         return Estimate(a_hat, None, None, ("no interval: a group has fewer than two values",))
     if var <= 0:

@@ -25,11 +25,11 @@ Statistic = Callable[..., np.ndarray]
 
 
 def chunk_size(na: int, nb: int, resamples: int) -> int:
-    """Resamples per chunk for two groups of sizes n_A and n_B (see `_chunk`)."""
-    return _chunk(na + nb, resamples)
+    """Resamples per chunk for two groups of sizes n_A and n_B (see `resamples_per_chunk`)."""
+    return resamples_per_chunk(na + nb, resamples)
 
 
-def _chunk(values_per_resample: int, resamples: int) -> int:
+def resamples_per_chunk(values_per_resample: int, resamples: int) -> int:
     """Resamples per chunk: as many as fit in CHUNK_VALUES drawn values (at least one)."""
     return max(1, min(resamples, CHUNK_VALUES // max(1, values_per_resample)))
 
@@ -81,7 +81,7 @@ def resample_units(statistics: Mapping[str, Statistic], samples: Sequence[np.nda
     """
     count_statistics = count_statistics or {}
     sizes = [s.shape[0] for s in samples]
-    step = _chunk(sum(s.size for s in samples), resamples)
+    step = resamples_per_chunk(sum(s.size for s in samples), resamples)
     out = {name: np.empty(resamples) for name in (*statistics, *count_statistics)}
     done = 0
     while done < resamples:

@@ -42,7 +42,10 @@ def plain(value: Any) -> Any:
     return value
 
 
-class _Plain:
+class Record:
+    """Base of the frozen result classes: `to_dict()` gives the object as JSON-ready data
+    (`plain`)."""
+
     def to_dict(self) -> dict[str, Any]:
         return plain(self)
 
@@ -51,7 +54,7 @@ class _Plain:
 
 
 @dataclass(frozen=True)
-class Exclusion(_Plain):
+class Exclusion(Record):
     """One data row left out of the analysis: its line in the file (header = line 1) and why."""
 
     row: int
@@ -59,7 +62,7 @@ class Exclusion(_Plain):
 
 
 @dataclass(frozen=True)
-class DataAccount(_Plain):
+class DataAccount(Record):
     """Where every row of the file went.
 
     rows_read = rows_used + len(excluded) + sum(not_selected.values())
@@ -80,7 +83,7 @@ class DataAccount(_Plain):
 
 
 @dataclass(frozen=True)
-class GroupSummary(_Plain):
+class GroupSummary(Record):
     label: str
     n: int
     missing: int
@@ -94,7 +97,7 @@ class GroupSummary(_Plain):
 
 
 @dataclass(frozen=True)
-class Normality(_Plain):
+class Normality(Record):
     label: str
     n: int
     shapiro_w: float | None
@@ -112,7 +115,7 @@ class Normality(_Plain):
 
 
 @dataclass(frozen=True)
-class Spread(_Plain):
+class Spread(Record):
     sd_ratio: float | None
     larger_sd_group: str
     iqr_ratio: float | None
@@ -129,7 +132,7 @@ class Spread(_Plain):
 
 
 @dataclass(frozen=True)
-class Ties(_Plain):
+class Ties(Record):
     label: str
     n: int
     tie_fraction: float
@@ -140,7 +143,7 @@ class Ties(_Plain):
 
 
 @dataclass(frozen=True)
-class Outliers(_Plain):
+class Outliers(Record):
     label: str
     rows: tuple[int, ...]
     beyond_1_5_iqr_rows: tuple[int, ...]
@@ -153,7 +156,7 @@ class Outliers(_Plain):
 
 
 @dataclass(frozen=True)
-class NormalTheoryCheck(_Plain):
+class NormalTheoryCheck(Record):
     """How well the normal model reads the overlap of the two groups."""
 
     cohen_d: float | None
@@ -164,7 +167,7 @@ class NormalTheoryCheck(_Plain):
 
 
 @dataclass(frozen=True)
-class Diagnostics(_Plain):
+class Diagnostics(Record):
     normality: tuple[Normality, ...]
     spread: Spread
     ties: Ties
@@ -181,7 +184,7 @@ class Diagnostics(_Plain):
 
 
 @dataclass(frozen=True)
-class PairedDiagnostics(_Plain):
+class PairedDiagnostics(Record):
     """Screening of paired data: the differences carry the assumptions."""
 
     differences_normality: Normality
@@ -196,7 +199,7 @@ class PairedDiagnostics(_Plain):
 
 
 @dataclass(frozen=True)
-class KSpread(_Plain):
+class KSpread(Record):
     sd_ratio: float | None
     largest_sd_group: str
     smallest_sd_group: str
@@ -211,7 +214,7 @@ class KSpread(_Plain):
 
 
 @dataclass(frozen=True)
-class KDiagnostics(_Plain):
+class KDiagnostics(Record):
     """Screening of three or more groups or conditions."""
 
     normality: tuple[Normality, ...]
@@ -225,7 +228,7 @@ class KDiagnostics(_Plain):
 
 
 @dataclass(frozen=True)
-class Interval(_Plain):
+class Interval(Record):
     """A confidence interval and the method that produced it."""
 
     method: str
@@ -236,7 +239,7 @@ class Interval(_Plain):
 
 
 @dataclass(frozen=True)
-class Effect(_Plain):
+class Effect(Record):
     """One effect size with its intervals.
 
     `ci_low`/`ci_high` repeat the interval of the index's own method (`ci_method`); `intervals`
@@ -271,7 +274,7 @@ class Effect(_Plain):
 
 
 @dataclass(frozen=True)
-class PairComparison(_Plain):
+class PairComparison(Record):
     """One pair of groups or conditions after an omnibus audit: the two-condition effects
     (first relative to second) and the follow-up test with its Holm-adjusted p."""
 
@@ -290,7 +293,7 @@ class PairComparison(_Plain):
 
 
 @dataclass(frozen=True)
-class Settings(_Plain):
+class Settings(Record):
     level: float
     bootstrap_resamples: int
     seed: int
@@ -311,7 +314,7 @@ class Samples:
 
 
 @dataclass(frozen=True)
-class AuditResult(_Plain):
+class AuditResult(Record):
     """Everything one audit found. `to_dict()` is the JSON document the command line writes,
     whose layout is published as a JSON Schema (`auditor schema audit`, docs/output-contract.md):
     each attribute below is the document's field of the same name, described there, and each

@@ -450,7 +450,7 @@ class _Plan:
 
 def _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler):
     """The checked settings shared by every source: (policy, seed)."""
-    from auditor.pipeline import _check_settings
+    from auditor.pipeline import check_settings
     from auditor.policy import Policy, load_policy
 
     if sort not in SORT_KEYS:
@@ -468,7 +468,7 @@ def _settings(policy, seed, resamples, level, jobs, sort, engine, scheduler):
             raise DesignError(DASK_MISSING) from None
     policy = policy if isinstance(policy, Policy) else load_policy(policy)
     seed = policy.value("bootstrap", "seed") if seed is None else seed
-    _check_settings(policy.value("intervals", "level") if level is None else level,
+    check_settings(policy.value("intervals", "level") if level is None else level,
                     policy.value("bootstrap", "resamples") if resamples is None else resamples,
                     seed)
     return policy, int(seed)
@@ -488,7 +488,7 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
     """Read the header of one source (a path or a data frame), check the options against it and
     cut its outcomes into batches (`batches`, split for `split_for` jobs). `common` holds the
     settings of every source (policy, seed, resamples, level, margins, report_folder)."""
-    from auditor.design import _choose_levels, _levels
+    from auditor.design import choose_levels, ordered_levels
     from auditor.pipeline import table_from_frame
 
     fixed = [group] + ([subject] if subject else [])
@@ -514,7 +514,7 @@ def _plan(data, label, *, group, groups, subject, outcomes, exclude, common: dic
     if unknown:
         raise DesignError(f"--exclude names no column '{unknown[0]}' of {name}")
     if subject is None:  # the levels are checked once, not once per outcome
-        _choose_levels(_levels([x.strip() for x in first.columns[group]]),
+        choose_levels(ordered_levels([x.strip() for x in first.columns[group]]),
                        list(groups) if groups else None, name, group, "--groups")
     looked_at, skipped = candidate_columns(header, group, subject, outcomes, exclude)
     notes = _guard(data, first, fixed, group, groups, subject, common["overrides"])
@@ -537,7 +537,7 @@ def _guard(data, first: Table, fixed: list[str], group: str, groups, subject,
     """The design guard (`guard.py`) of one source, once, on its columns beside the grouping and
     the subject (`guard.columns_to_look_at`): a DesignError naming the file, or the override
     notes."""
-    from auditor.design import _choose_levels, _levels
+    from auditor.design import choose_levels, ordered_levels
     from auditor.guard import check_independent, check_repeated, columns_to_look_at
     from auditor.pipeline import table_from_frame
 
@@ -552,7 +552,7 @@ def _guard(data, first: Table, fixed: list[str], group: str, groups, subject,
     if subject is not None:
         return check_repeated(table, group, subject, named,
                               list(groups) if groups else None, overrides)
-    levels = _choose_levels(_levels([x.strip() for x in table.columns[group]]),
+    levels = choose_levels(ordered_levels([x.strip() for x in table.columns[group]]),
                             list(groups) if groups else None, table.path, group, "--groups")
     return check_independent(table, named, group, levels, overrides)
 

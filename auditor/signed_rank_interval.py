@@ -35,7 +35,7 @@ import math
 import numpy as np
 from scipy import optimize, special
 
-from auditor.paired import (EXACT_MAX_N, _signed_rank_parts, sign_pattern_pmf,
+from auditor.paired import (EXACT_MAX_N, signed_rank_parts, sign_pattern_pmf,
                             signed_rank_null_pmf)
 from auditor.ranks import midranks
 from auditor.results import Interval
@@ -375,7 +375,7 @@ def _score_limits(r_hat: float, n: int, lam: float, c: float) -> tuple[float, fl
 
 
 def _rank_parts(d: np.ndarray):
-    r_plus, r_minus, tie_term, n = (float(np.asarray(v)) for v in _signed_rank_parts(d))
+    r_plus, r_minus, tie_term, n = (float(np.asarray(v)) for v in signed_rank_parts(d))
     return r_plus, r_minus, tie_term, int(n)
 
 

@@ -32,13 +32,13 @@ from scipy import special, stats
 
 from auditor import kgroups, paired, parametric, ranks, resampling
 from auditor.moments import mean_var
-from auditor.results import _Plain
+from auditor.results import Record
 
 COMPARES = ("means", "ranks", "signs")
 
 
 @dataclass(frozen=True)
-class TestResult(_Plain):
+class TestResult(Record):
     """One test of difference.
 
     `df` is a number for t and chi-squared statistics, [df1, df2] for F, None where no degrees of
@@ -282,7 +282,7 @@ def brunner_munzel(a, b) -> TestResult:
     if reason:
         return make(reason=reason)
     with np.errstate(all="ignore"):
-        a_hat, var, df = ranks._brunner_munzel_parts(a, b)
+        a_hat, var, df = ranks.brunner_munzel_parts(a, b)
     details = {"n": [int(a.size), int(b.size)], "prob_superiority": a_hat}
     if not var > 0:
         why = ("the groups do not overlap" if a_hat in (0.0, 1.0)
@@ -330,7 +330,7 @@ def permutation_mean_difference(a, b, *, rng, permutations: int = 9999) -> TestR
     notes: list[str] = []
     if _constant(np.concatenate([a, b])):
         notes.append("every value is equal: every rearrangement gives the same difference")
-    batch = resampling._chunk(a.size + b.size, min(distinct, permutations))
+    batch = resampling.resamples_per_chunk(a.size + b.size, min(distinct, permutations))
     with _library_call(notes):
         res = stats.permutation_test((a, b), _mean_gap, permutation_type="independent",
                                      vectorized=True, n_resamples=permutations, batch=batch,
@@ -415,7 +415,7 @@ def wilcoxon_signed_rank(x, *, digits: int = 12) -> TestResult:
         return make("not computed", reason=reason)
     d = paired.differences(x, digits)
     r_plus, r_minus, tie_term, n_used = (v.item() for v in
-                                         map(np.asarray, paired._signed_rank_parts(d)))
+                                         map(np.asarray, paired.signed_rank_parts(d)))
     n_used = int(n_used)
     details = {"n_pairs": int(d.size), "n_used": n_used, "n_zero": int(d.size - n_used),
                "r_plus": float(r_plus), "r_minus": float(r_minus)}
@@ -497,7 +497,7 @@ def sign_flip_mean(x, *, rng, permutations: int = 9999, digits: int = 12) -> Tes
     notes: list[str] = []
     if np.all(d == 0):
         notes.append("every difference is zero: every sign pattern gives the same mean")
-    batch = resampling._chunk(d.size, min(distinct, permutations))
+    batch = resampling.resamples_per_chunk(d.size, min(distinct, permutations))
     with _library_call(notes):
         res = stats.permutation_test((d,), _mean_last, permutation_type="samples",
                                      vectorized=True, n_resamples=permutations, batch=batch,

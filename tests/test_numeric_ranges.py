@@ -279,7 +279,7 @@ def test_welch_anova_is_scale_free_at_extreme_scales(scale):
 
 def test_brunner_munzel_at_complete_separation_is_undefined_with_a_reason():
     a, b = np.array([5.0, 6, 7, 8]), np.array([1.0, 2, 3])
-    a_hat, var, df = ranks._brunner_munzel_parts(a, b)
+    a_hat, var, df = ranks.brunner_munzel_parts(a, b)
     assert (a_hat, var) == (1.0, 0.0) and math.isnan(df)
     est = ranks.prob_superiority(a, b, LEVEL)
     assert est.value == 1.0 and est.interval is None and "variance is zero" in est.notes[0]
@@ -291,7 +291,7 @@ def test_brunner_munzel_df_with_one_groups_placements_constant():
     # every b lies between a's third and fourth value: b's placements are all 3, S_B^2 = 0, and
     # df is n_A - 1 (statsmodels.stats.nonparametric.rank_compare_2indep reports 4.0)
     a, b = np.array([1.0, 2, 3, 10, 11]), np.array([4.0, 5, 6, 7])
-    _, var, df = ranks._brunner_munzel_parts(a, b)
+    _, var, df = ranks.brunner_munzel_parts(a, b)
     assert var > 0 and df == 4.0
     ref = rank_compare_2indep(a, b)
     assert df == pytest.approx(float(ref.df), rel=1e-12)
@@ -309,7 +309,7 @@ def test_brunner_munzel_with_a_single_value_group_is_undefined_without_warning()
 @STEADY
 def test_brunner_munzel_df_inside_its_range(a, b):
     a, b = np.array(a, float), np.array(b, float)
-    a_hat, var, df = ranks._brunner_munzel_parts(a, b)
+    a_hat, var, df = ranks.brunner_munzel_parts(a, b)
     assert 0.0 <= a_hat <= 1.0
     if var > 0:
         assert min(a.size, b.size) - 1 - 1e-9 <= df <= a.size + b.size - 2 + 1e-9

@@ -628,7 +628,7 @@ def test_audit_end_to_end_paired_wide():
         assert axis == -1
         return paired.mean_difference_values(np.stack([x, y], axis=-1), digits)
     ref = stats.bootstrap((a, b), mean_diff, paired=True, n_resamples=resamples,
-                          batch=resampling._chunk(2 * a.size, resamples), method="BCa",
+                          batch=resampling.resamples_per_chunk(2 * a.size, resamples), method="BCa",
                           confidence_level=LEVEL, vectorized=True, rng=np.random.default_rng(seed))
     boot = eff["mean_difference"].interval("bca_bootstrap")
     assert boot.low == pytest.approx(ref.confidence_interval.low, rel=1e-9)
