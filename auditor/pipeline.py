@@ -144,8 +144,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     else:
         header = tuple(str(c) for c in data.columns)
         table = table_from_frame(data, columns + columns_to_look_at(header, columns, len(data)))
-    settings = dict(level=level, resamples=resamples, seed=int(seed), progress=progress,
-                    policy=policy, scope=scope)
+    run = RunSettings(level, resamples, int(seed), policy, scope, progress)
     if reference is not None and (wide is not None or subject is not None):
         raise DesignError("--reference applies to two independent groups only (it names the"
                           " group whose SD scales Glass's delta)")
@@ -157,13 +156,13 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
         if guarded:
             notes = check_repeated(table, None, subject, columns, overrides=overrides)
         check_margin_names(margins, design)
-        result = _audit_repeated(design, outcome or design.outcome, **settings)
+        result = _audit_repeated(design, outcome or design.outcome, run)
     elif subject is not None:
         if guarded:
             notes = check_repeated(table, group, subject, columns, chosen, overrides)
         design = long_repeated(table, outcome, group, subject, chosen)
         check_margin_names(margins, design)
-        result = _audit_repeated(design, outcome, **settings)
+        result = _audit_repeated(design, outcome, run)
     else:
         design = independent_groups(table, outcome, group, chosen)
         if guarded:
@@ -172,7 +171,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
         check_margin_names(margins, design)
         labels = cluster_labels(table, design, cluster) if cluster is not None else None
         if len(design.labels) == 2:
-            result = _audit_two_groups(design, reference, **settings)
+            result = _audit_two_groups(design, reference, run)
             if labels is not None:
                 result = with_texts(with_clusters(result, design, cluster, labels), policy)
         elif cluster is not None:
@@ -181,7 +180,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
         elif reference is not None:
             raise DesignError("--reference applies to two independent groups only")
         else:
-            result = _audit_k_groups(design, **settings)
+            result = _audit_k_groups(design, run)
     if notes:
         result = dataclasses.replace(result, warnings=tuple(result.warnings) + notes)
     result = with_equivalence(result, policy, margins or {})
@@ -401,12 +400,29 @@ def _result(design, outcome, group_column, summaries, account, diag, effects, no
     return AuditResult(
         design=design, outcome=outcome, group_column=group_column, groups=summaries,
         data=account, diagnostics=diag, effects=effects,
-        settings=Settings(settings["level"], settings["resamples"], settings["seed"], reference,
-                          settings.get("scope", "full")),
+        settings=Settings(settings.level, settings.resamples, settings.seed, reference,
+                          settings.scope),
         caution=CAUTION, tool_version=__version__, warnings=tuple(notes),
         subject_column=subject, tests=tests or {}, pairwise=tuple(pairwise),
         influence=influence,
     )
+
+
+@dataclasses.dataclass(frozen=True)
+class RunSettings:
+    """What every stage of one audit runs with: the confidence level, the bootstrap resamples,
+    the seed, the policy, the scope ("full" or "screen") and where to report progress."""
+
+    level: float
+    resamples: int
+    seed: int
+    policy: Policy
+    scope: str = "full"
+    progress: Progress = dataclasses.field(default=None, compare=False)
+
+    @property
+    def screen(self) -> bool:
+        return self.scope == "screen"
 
 
 @dataclasses.dataclass(frozen=True)
@@ -418,7 +434,7 @@ class _Work:
     specs: tuple[EffectSpec, ...]
     loo: dict
     units: Units
-    settings: dict
+    settings: RunSettings
     rng: Callable[[], np.random.Generator]  # a fresh generator drawing the same resamples
 
 
@@ -436,9 +452,9 @@ def screen_focus(design: str, policy: Policy) -> frozenset[str]:
 def _estimate(specs, samples, settings, rng, progress=None, design: str | None = None):
     """`estimate_all` over the whole registry, or, in the screen scope, focused on the indices
     the row can show."""
-    policy = settings["policy"]
-    focus = screen_focus(design, policy) if settings.get("scope") == "screen" else None
-    return estimate_all(specs, samples, settings["level"], settings["resamples"], rng, progress,
+    policy = settings.policy
+    focus = screen_focus(design, policy) if settings.screen else None
+    return estimate_all(specs, samples, settings.level, settings.resamples, rng, progress,
                         focus, policy.value("intervals", "method"))
 
 
@@ -447,8 +463,8 @@ def _influence(specs, effects, samples, loo, units, settings, design: str, diag)
     without its fragility search (`_decided` adds the primary index's) and with exact interval
     rechecks only for the cases the outlier check reads (the extreme ones; every participant in
     k repeated conditions)."""
-    policy = settings["policy"]
-    if settings.get("scope") == "screen":
+    policy = settings.policy
+    if settings.screen:
         mean = MEAN_INDEX[POLICY_DESIGN[design]]
         specs = tuple(s for s in specs if s.name == mean and s.name in loo)
         outliers = {"two_independent": getattr(diag, "outliers", None),
@@ -456,9 +472,9 @@ def _influence(specs, effects, samples, loo, units, settings, design: str, diag)
                     "paired": (getattr(diag, "differences_outliers", None),)}.get(design)
         rows = (None if outliers is None
                 else frozenset(extreme_rows(outliers, policy.value("outliers", "rule"))))
-        return influence_table(specs, effects, samples, loo, units, settings["level"],
+        return influence_table(specs, effects, samples, loo, units, settings.level,
                                policy.benchmarks(), search=False, recheck_rows=rows)
-    return influence_table(specs, effects, samples, loo, units, settings["level"],
+    return influence_table(specs, effects, samples, loo, units, settings.level,
                            policy.benchmarks())
 
 
@@ -470,7 +486,7 @@ def _decided(result: AuditResult, samples, policy: Policy, digits: int = 12,
     first, and the texts are left empty."""
     rng = np.random.default_rng(np.random.SeedSequence(result.settings.seed,
                                                        spawn_key=(PERMUTATION_STREAM,)))
-    screen = work.settings.get("scope") == "screen"
+    screen = work.settings.screen
     choice = choose(result, policy)
     if screen:
         result = _finish_primary(result, samples, policy, work, choice)
@@ -512,7 +528,7 @@ def _refragile(result: AuditResult, samples, policy: Policy, work: _Work,
     spec = next(s for s in work.specs if s.name == choice.primary)
     return dataclasses.replace(result, influence=with_fragility(
         result.influence, spec, quoted, samples, work.loo[choice.primary], work.units,
-        work.settings["level"], policy.benchmarks()))
+        work.settings.level, policy.benchmarks()))
 
 
 def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work,
@@ -527,14 +543,14 @@ def _finish_primary(result: AuditResult, samples, policy: Policy, work: _Work,
     loo = work.loo.get(primary)
     if loo is None:  # a fallback index: estimate it as the full run does, from the same stream
         (effect,), _, found = estimate_all(
-            (spec,), samples, work.settings["level"], work.settings["resamples"], work.rng(),
+            (spec,), samples, work.settings.level, work.settings.resamples, work.rng(),
             None, {primary}, policy.value("intervals", "method"))
         loo = found[primary]
         result = dataclasses.replace(result, effects=tuple(
             effect if e.name == primary else e for e in result.effects))
     return dataclasses.replace(result, influence=with_fragility(
         result.influence, spec, test_matched_effect(effect, result.design, choice, policy),
-        samples, loo, work.units, work.settings["level"], policy.benchmarks()))
+        samples, loo, work.units, work.settings.level, policy.benchmarks()))
 
 
 def _work(specs, loo, units, settings, rng) -> _Work:
@@ -552,12 +568,13 @@ def _sorted_groups(design: Groups) -> Groups:
                                rows=tuple(r[o] for r, o in zip(design.rows, orders)))
 
 
-def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, progress, policy,
-                      scope="full"):
+def _audit_two_groups(design: Groups, reference, settings: RunSettings):
+    level, resamples, seed, progress, policy, scope = (
+        settings.level, settings.resamples, settings.seed, settings.progress, settings.policy,
+        settings.scope)
     ref_index = _reference_index(design.labels, reference)
     design = _sorted_groups(design)
     a, b = design.a, design.b
-    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
     specs = two_group_effects(ref_index)
     effects, notes, loo = _estimate(specs, (a, b), settings, np.random.default_rng(seed),
                                     progress, "two_independent")
@@ -575,11 +592,13 @@ def _audit_two_groups(design: Groups, reference, *, level, resamples, seed, prog
 SCREEN_NO_PAIRS = "pairwise comparisons are not computed in a screen; audit the outcome for them"
 
 
-def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy, scope="full"):
+def _audit_k_groups(design: Groups, settings: RunSettings):
+    level, resamples, seed, progress, policy, scope = (
+        settings.level, settings.resamples, settings.seed, settings.progress, settings.policy,
+        settings.scope)
     groups = design.values
     pairs = list(itertools.combinations(range(len(groups)), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
-    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
     first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_independent_effects()
     effects, notes, loo = _estimate(specs, groups, settings, rngs[0], progress, "k_independent")
@@ -610,13 +629,14 @@ def _audit_k_groups(design: Groups, *, level, resamples, seed, progress, policy,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
 
-def _audit_repeated(design: Repeated, outcome, *, level, resamples, seed, progress, policy,
-                    scope="full"):
+def _audit_repeated(design: Repeated, outcome, settings: RunSettings):
+    level, resamples, seed, progress, policy, scope = (
+        settings.level, settings.resamples, settings.seed, settings.progress, settings.policy,
+        settings.scope)
     x = design.matrix
     digits = paired.difference_digits(x, design.decimals)
     labels = design.labels
     columns = tuple(x[:, k] for k in range(x.shape[1]))
-    settings = dict(level=level, resamples=resamples, seed=seed, policy=policy, scope=scope)
     if x.shape[1] == 2:
         specs = paired_effects(digits)
         effects, notes, loo = _estimate(specs, (x,), settings, np.random.default_rng(seed),
