@@ -39,7 +39,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from auditor.catalogue import AT_ONE_HALF
-from auditor.render import num, pval
+from auditor.formatting import number as num, p_value as pval
 from auditor.results import AuditResult, Effect
 
 NAMES = ("distributions", "qq", "ecdf", "influence", "intervals")

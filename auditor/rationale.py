@@ -8,6 +8,7 @@ so a reader can find each one in the JSON; the tests check that they match.
 from __future__ import annotations
 
 from auditor.catalogue import CATALOGUE, OUTLIER_WATCH, as_design, index, labels
+from auditor.formatting import fixed as fmt, percent as _percent
 from auditor.policy import Policy
 
 CAUTION = (
@@ -38,18 +39,6 @@ CHECK_WORDS = {
     " extreme case", "non_normal": "non-normality", "unequal_spread": "unequal spread",
     "many_zeros": "many zero differences", "assumptions_hold": "no failed check",
 }
-
-
-def fmt(value: float | None, decimals: int) -> str:
-    """A number as the texts quote it (fixed decimals; 'n/a' when undefined)."""
-    if value is None:
-        return "n/a"
-    return f"{value:.{decimals}f}"
-
-
-def _percent(value: float, decimals: int) -> str:
-    """A proportion as a percentage, one decimal fewer than the other numbers."""
-    return f"{value * 100:.{max(decimals - 1, 0)}f}%"
 
 
 def meaning(name: str, value: float | None, labels: tuple[str, ...], outcome: str,

@@ -6,10 +6,10 @@ This is the only place numbers are rounded; JSON keeps full precision.
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 
+from auditor.formatting import number as num, p_value as pval
 from auditor.results import AuditResult
 from auditor.rationale import coverage_text
 
@@ -17,21 +17,6 @@ from auditor.rationale import coverage_text
 def to_json(result: AuditResult) -> str:
     """The audit as a JSON document (full precision; nulls where a value is undefined)."""
     return json.dumps(result.to_dict(), indent=2, allow_nan=False, ensure_ascii=False) + "\n"
-
-
-def num(x: float | None, digits: int = 3) -> str:
-    """A number for people: fixed decimals, 'n/a' when undefined."""
-    if x is None or not math.isfinite(x):
-        return "n/a"
-    if x != 0 and abs(x) < 10 ** (-digits):
-        return f"{x:.{digits - 1}e}"
-    return f"{x:.{digits}f}"
-
-
-def pval(p: float | None) -> str:
-    if p is None:
-        return "n/a"
-    return "< 0.001" if p < 0.001 else f"{p:.3f}"
 
 
 def lines_list(rows, limit: int = 8) -> str:

@@ -27,6 +27,7 @@ import numpy as np
 
 from auditor import __version__
 from auditor.errors import AuditError
+from auditor.formatting import count_or as _count_or, number as _n, p_value as _p
 from auditor.magnitude import magnitude_label
 from auditor.rationale import INTERVAL_WORDS, NAMES, coverage_text
 
@@ -104,33 +105,6 @@ def _m(text) -> str:
     markup characters, and no line breaks (a label must not end a table row)."""
     text = html.escape(str(text), quote=False).replace("\n", " ").replace("\r", " ")
     return _MD_SPECIAL.sub(r"\\\1", text)
-
-
-def _n(x, digits: int = 3) -> str:
-    if x is None:
-        return "n/a"
-    try:
-        value = float(x)
-    except (TypeError, ValueError):
-        return str(x)
-    if value != value or value in (float("inf"), float("-inf")):
-        return "n/a"
-    if value != 0 and abs(value) < 10 ** (-digits):
-        return f"{value:.{digits - 1}e}"
-    return f"{value:.{digits}f}"
-
-
-def _count_or(x) -> str:
-    """Whole numbers (counts, sizes) as such; other values with two decimals."""
-    if x is not None and float(x).is_integer() and abs(x) < 1e15:
-        return str(int(x))
-    return _n(x, 2)
-
-
-def _p(p) -> str:
-    if p is None:
-        return "n/a"
-    return "< 0.001" if p < 0.001 else f"{p:.3f}"
 
 
 # ------------------------------------------------------------------ content, shared by both forms

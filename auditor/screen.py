@@ -43,6 +43,7 @@ from auditor.decide import quoted_interval
 from auditor.sources import Source
 from auditor.pipeline import SCREEN_COMPANIONS
 from auditor.adjust import benjamini_hochberg, holm
+from auditor.formatting import compact as _fmt
 from auditor.catalogue import AT_ONE_HALF
 from auditor.policy import INDICES
 from auditor.results import SCHEMA_VERSION
@@ -822,14 +823,6 @@ _HTML_COLUMNS = (("outcome", "outcome"), ("status", "status"), ("n", "n"),
                  ("most_influential_row", "most influential line"),
                  ("size_verdict", "at the margin"), ("test", "test"),
                  ("p", "p"), ("p_holm", "p (Holm)"), ("p_bh", "p (BH)"))
-
-
-def _fmt(x, digits=3) -> str:
-    if x is None:
-        return ""
-    if isinstance(x, float):
-        return f"{x:.{digits}g}" if abs(x) < 1e-3 and x != 0 else f"{x:.{digits}f}"
-    return str(x)
 
 
 _MANY_COLUMNS = ((("file", "file"),) + _HTML_COLUMNS
