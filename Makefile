@@ -17,7 +17,7 @@ PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 BROWSER_STAMP := $(VENV)/.browser
 
-.PHONY: demo test bench bench-screen browser clean
+.PHONY: demo test check bench bench-screen browser clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -36,6 +36,11 @@ demo: $(STAMP)
 
 test: $(STAMP) $(BROWSER_STAMP)
 	$(PY) -m pytest -q
+
+# The fast tier for the edit-test loop (about 2 minutes on 2 cores): every test not marked slow,
+# on two worker processes (pytest-xdist). `make test` still runs everything, in one process.
+check: $(STAMP) $(BROWSER_STAMP)
+	$(PY) -m pytest -q -m "not slow" -n 2
 
 bench: $(STAMP)
 	$(PY) tests/benchmarks/run_benchmarks.py

@@ -182,6 +182,7 @@ def _check_agreement(result, design):
 
 @AGREEMENT
 @given(frame=two_group_data())
+@pytest.mark.slow
 def test_the_quoted_interval_agrees_with_the_reported_test_for_two_groups(frame):
     result = run(frame, outcome="y", group="g")
     name = result.decision.test["name"]
@@ -193,6 +194,7 @@ def test_the_quoted_interval_agrees_with_the_reported_test_for_two_groups(frame)
 
 @AGREEMENT
 @given(frame=paired_data())
+@pytest.mark.slow
 def test_the_quoted_interval_agrees_with_the_reported_test_for_paired_data(frame):
     result = run(frame, paired_columns=["first", "second"])
     name = result.decision.test["name"]

@@ -343,6 +343,7 @@ def test_json_to_file(run_cli, strict_json, reading_csv, tmp_path):
     assert doc["group_column"] == "font"
 
 
+@pytest.mark.slow
 def test_out_dir_writes_audit_json(run_cli, strict_json, reading_csv, tmp_path):
     out_dir = tmp_path / "runs" / "first"
     res = run_cli(*check_args(reading_csv, "--out", out_dir, "--quiet"))
@@ -355,6 +356,7 @@ def test_out_dir_writes_audit_json(run_cli, strict_json, reading_csv, tmp_path):
     assert again.out == written
 
 
+@pytest.mark.slow
 def test_out_dir_under_a_regular_file(run_cli, reading_csv, tmp_path):
     blocker = tmp_path / "notes.txt"
     blocker.write_text("not a folder\n")
@@ -546,6 +548,7 @@ def _run(args, cwd, **kwargs):
     ("missing_file", 1), ("unknown_column", 1), ("bad_level", 1), ("thin_third_level", 1),
     ("unknown_option", 2), ("not_numeric_boot", 2), ("binary_file", 1),
 ])
+@pytest.mark.slow
 def test_module_bad_inputs_never_show_a_traceback(tmp_path, reading_csv, case, expected):
     three = tmp_path / "three.csv"
     three.write_text(READING + "mono,201\n")  # a third level with a single value
@@ -578,6 +581,7 @@ def test_module_runs_a_check(tmp_path, reading_csv):
     assert json.loads(proc.stdout)["design"] == "two_independent"
 
 
+@pytest.mark.slow
 def test_installed_console_script(tmp_path, reading_csv):
     script = Path(sys.executable).parent / "auditor"
     if not script.exists():

@@ -211,6 +211,7 @@ def test_cluster_replicates_are_a_plain_loop_over_resampled_clusters_with_the_sa
 
 
 @pytest.mark.parametrize("name", CHECKED)
+@pytest.mark.slow
 def test_cluster_bootstrap_interval_is_scipys_bca_over_the_clusters_positions(name):
     parts_a, parts_b = _two_groups(9)
     spec = next(s for s in two_group_effects() if s.name == name)
@@ -375,6 +376,7 @@ def test_k_groups_with_a_cluster_column_are_refused(write_file):
 # ------------------------------------------------------------------ command line and reports
 
 
+@pytest.mark.slow
 def test_check_with_cluster_writes_the_block_and_the_reports(run_cli, pupils, tmp_path):
     out, doc = tmp_path / "report", tmp_path / "audit.json"
     res = run_cli("check", pupils, "--outcome", "score", "--group", "approach", "--cluster",
@@ -401,6 +403,7 @@ def test_an_unknown_cluster_column_stops_in_one_line(run_cli, pupils):
     one_line_error(res, "classroom")
 
 
+@pytest.mark.slow
 def test_cluster_column_names_are_escaped_in_html(write_file, tmp_path, run_cli):
     text = _pupils().replace("approach,class,score", "approach,<b>room</b>,score", 1)
     path = write_file("escape.csv", text)

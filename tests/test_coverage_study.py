@@ -22,6 +22,8 @@ from scipy import stats
 
 from auditor.parametric import trimmed_mean_values, winsorized_variance_values
 
+pytestmark = pytest.mark.slow  # `make check` leaves these out: coverage is simulated
+
 ROOT = Path(__file__).resolve().parents[1]
 
 

@@ -94,6 +94,7 @@ def test_unequal_spread_with_unequal_n_turns_to_unpooled_d_and_welch():
     assert d.test["df"] == pytest.approx(ref.df, rel=1e-10)
 
 
+@pytest.mark.slow
 def test_a_milder_sd_ratio_fires_only_when_the_smaller_group_is_wider():
     wide_small = run(two(normal_values(30, 0.5, 1.7), normal_values(80)))
     wide_large = run(two(normal_values(80, 0.5, 1.7), normal_values(30)))
@@ -261,6 +262,7 @@ def _json_numbers(doc, decimals: int) -> set[str]:
 
 
 @pytest.mark.parametrize("case", ["normal", "skewed", "ties", "outlier", "tiny", "k"])
+@pytest.mark.slow
 def test_every_number_in_the_texts_is_a_json_value(case):
     rng = np.random.default_rng(21)
     frames = {

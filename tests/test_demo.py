@@ -5,9 +5,13 @@ from __future__ import annotations
 import io
 import json
 
+import pytest
+
 from auditor.cli import main
 from auditor.demo import demo_audits, demo_data_path, make_demo_frame
 from honest import assert_honest_intervals
+
+pytestmark = pytest.mark.slow  # `make check` leaves these out: the whole demo is run
 
 
 def test_committed_csv_is_what_the_seeded_generator_writes():

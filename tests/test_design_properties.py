@@ -446,6 +446,7 @@ def test_holm_is_monotone_and_bounded(ps):
 
 @STEADY
 @given(ps=st.lists(st.floats(1e-12, 1.0, allow_nan=False), min_size=1, max_size=12))
+@pytest.mark.slow
 def test_holm_agrees_with_statsmodels(ps):
     _, expected, _, _ = multipletests(ps, method="holm")
     assert adjust.holm(ps) == pytest.approx(list(expected), rel=1e-12, abs=1e-15)

@@ -15,7 +15,9 @@ import pytest
 
 from auditor import audit
 from auditor.figures import ALT_LIMIT, NAMES, PALETTE, Figure, clean, figures
-from auditor.render import num
+from auditor.formatting import number as num
+
+pytestmark = pytest.mark.slow  # `make check` leaves these out: every figure of every design is drawn
 
 DEMO = Path(__file__).resolve().parent.parent / "demo" / "cycling_commute.csv"
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"

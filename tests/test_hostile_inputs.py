@@ -468,6 +468,7 @@ def _fill(text: str, tmp: Path, path: Path) -> str:
 
 
 @pytest.mark.parametrize("case", list(_params()))
+@pytest.mark.slow
 def test_hostile_input(case: Case, run_cli, strict_json, tmp_path):
     path = tmp_path / case.name
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -644,13 +645,6 @@ def test_million_rows_are_all_accounted_for(million_run):
     assert [e["row"] for e in data["excluded"]] == [k + 2 for k in MILLION_BAD]
     assert all(e["reason"] == "y is missing ('NA')" for e in data["excluded"])
     assert data["blank_lines"] == 3
-
-
-@pytest.mark.slow
-def test_million_rows_finish_within_120_seconds(million_run):
-    # measured on a 2-core machine: well under the limit on a quiet machine, slower under load
-    assert million_run["code"] == 0, million_run["stderr"]
-    assert million_run["seconds"] < 120, million_run
 
 
 @pytest.mark.slow

@@ -476,6 +476,7 @@ def strata_lines(data: Data) -> list[list[int]]:
 
 
 @pytest.mark.parametrize("data", ALL_DATA, ids=ids)
+@pytest.mark.slow
 def test_stratified_jackknife_se_and_bias_from_outside_values(data):
     """SE^2 = sum_j (n_j - 1)/n_j sum_i (theta_(ji) - mean_j)^2 and
     bias = sum_j (n_j - 1)(mean_j - theta-hat) (Efron & Tibshirani 1993, sec. 10.5 and 11.2,
@@ -680,6 +681,7 @@ def test_fragility_not_reached_when_no_removal_can_turn_the_sign():
             assert side(data.estimate(name, list(drop_a) + b_lines[:3]), null_of(name)) == 1
 
 
+@pytest.mark.slow
 def test_interval_flips_with_more_units_than_the_exact_limit():
     """325 cases (above EXACT_ALL_UNITS = 300): the flags still match an outside recomputation
     of d's noncentral-t interval for every single case."""
@@ -731,6 +733,7 @@ def true_minimum(data: Data, crossed, max_size: int = 3) -> tuple[int | None, tu
 
 
 @pytest.mark.parametrize("data", TINY, ids=ids)
+@pytest.mark.slow
 def test_greedy_sign_fragility_bounds_the_brute_force_minimum(data):
     for name in OUTSIDE[data.design]:
         full_side = side(data.estimate(name), null_of(name))
@@ -959,6 +962,7 @@ SIGNED_TWO_GROUP = ("mean_difference", "cohen_d", "hedges_g", "glass_delta", "d_
 
 # shrinking is left out so that a failure costs no more time than a pass (the minimal case of
 # the tie problem is the deterministic test below)
+@pytest.mark.slow
 @settings(derandomize=True, deadline=None, max_examples=25, database=None,
           phases=(Phase.explicit, Phase.generate), suppress_health_check=[HealthCheck.too_slow])
 @given(seed=st.integers(0, 2**32 - 1), na=st.integers(4, 14), nb=st.integers(4, 14),
@@ -1010,6 +1014,7 @@ def test_tied_candidates_do_not_make_fragility_depend_on_group_order():
     assert counts[0] == counts[1], counts
 
 
+@pytest.mark.slow
 def test_fragility_search_is_bounded_by_a_step_limit_that_shrinks_with_size():
     assert step_limit(10) == MAX_STEPS and step_limit(4_000) == MAX_STEPS
     assert step_limit(40_000) == 50 and step_limit(400_000) == MIN_STEPS
@@ -1073,6 +1078,7 @@ def _shortcut_cases():
         np.round(rng.normal(0.0, 1.0, 80), 3)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("case, a, b", list(_shortcut_cases()))
 def test_the_containment_shortcut_leaves_every_influence_record_as_it_was(case, a, b,
                                                                          monkeypatch):

@@ -29,7 +29,8 @@ def _two_group_cases():
     # every value equal but one far one: without it both groups are constant and the d family
     # is undefined by refit; the reverse update must not leave a rounding residue (a finite or
     # infinite d) there, and a constant 0.1 has a mean by summation that misses 0.1
-    yield "one_far_value", np.r_[np.full(4999, 10.0), 1000.0], np.full(5000, 10.0)
+    yield pytest.param("one_far_value", np.r_[np.full(4999, 10.0), 1000.0],
+                       np.full(5000, 10.0), marks=pytest.mark.slow)  # 5,000 refits per group
     yield "one_far_low_value", np.r_[-250.0, np.full(40, 0.1)], np.full(31, 0.1)
     yield "constant_group", rng.normal(0.1, 1.0, 25), np.full(33, 0.1)
 

@@ -448,6 +448,7 @@ _BAD_OUTCOMES = st.sampled_from(["", "NA", "x", "inf", "1,5", "-"])
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.function_scoped_fixture])
 @given(kinds=st.lists(st.tuples(_ROW_KINDS, st.sampled_from(["loam", "clay"]), _BAD_OUTCOMES,
                                 st.integers(10, 40)), max_size=25))
+@pytest.mark.slow
 def test_every_line_is_accounted_for(run_cli, strict_json, kinds):
     lines = ["soil,height_cm"] + [f"{s},{h}" for s, h in PLANTS]  # lines 1-9
     expected_bad, expected_other, rows = [], 0, len(PLANTS)

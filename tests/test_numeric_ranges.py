@@ -58,6 +58,7 @@ def _nct_cdf_over_chi(t: float, df: float, ncp: float) -> float:
 
 @pytest.mark.parametrize("df", [1, 3, 10, 30, 100, 1000, 1e5])
 @pytest.mark.parametrize("t", [-800.0, -30.0, -2.5, 0.0, 0.7, 4.0, 60.0, 900.0])
+@pytest.mark.slow
 def test_noncentral_t_quadrature_matches_scipy_where_scipy_is_valid(df, t):
     # the fallback integration against scipy.stats.nct.cdf in scipy's valid range (|t| <= 1000)
     se = math.sqrt(1.0 + t * t / (2.0 * df))
@@ -633,6 +634,7 @@ def test_shape_statistics_are_scale_free_at_extreme_scales():
 # ------------------------------------------------------------------ through the whole audit
 
 
+@pytest.mark.slow
 def test_audit_of_separated_groups_with_tiny_spread_gives_a_finite_document():
     rng = np.random.default_rng(51)
     frame = pd.DataFrame({"y": np.concatenate([10.0 + 1e-4 * rng.standard_normal(12),

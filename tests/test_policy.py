@@ -180,6 +180,7 @@ def test_policy_commands(run_cli, tmp_path):
     assert code == 1 and err.strip().count("\n") == 0 and "spread.sd_ratio" in err
 
 
+@pytest.mark.slow
 def test_check_with_a_policy_reports_its_fingerprint_for_every_design(run_cli, strict_json,
                                                                      tmp_path):
     policy_path = tmp_path / "lab.toml"

@@ -271,6 +271,7 @@ def _row_matches(spec, va, row_a, row_b):
 
 @STEADY
 @given(stack=stacked_pair(), reference=st.sampled_from([0, 1]))
+@pytest.mark.slow
 def test_vectorised_values_match_scalar_estimates(stack, reference):
     A, B = stack
     for spec in two_group_effects(reference):

@@ -137,6 +137,7 @@ def test_an_unwritable_folder_is_one_clear_error(tmp_path):
         write_report(_result(), blocker / "sub", with_figures=False)
 
 
+@pytest.mark.slow
 def test_out_alone_writes_reports_outcome_and_matches_result_report(run_cli, tmp_path,
                                                                    monkeypatch):
     data = tmp_path / "trial.csv"

@@ -208,6 +208,7 @@ def test_the_inlined_schema_decides_as_the_shipped_one(run_cli, strict_json, wri
 # ------------------------------------------------------------------ every design validates
 
 
+@pytest.mark.slow
 def test_demo_documents_follow_the_schema(tmp_path, checkers):
     from auditor.demo import demo_audits, run_demo
 
@@ -290,6 +291,7 @@ def _hostile_successes():
 
 
 @pytest.mark.parametrize("case", list(_hostile_successes()))
+@pytest.mark.slow
 def test_hostile_inputs_that_succeed_give_documents_that_follow_the_schema(
         case, run_cli, strict_json, tmp_path, checkers):
     path = tmp_path / case.name
@@ -316,6 +318,7 @@ def _screen_data(folder: Path, seed: int, name: str) -> Path:
     return path
 
 
+@pytest.mark.slow
 def test_screen_of_one_file_follows_the_schema(tmp_path, checkers):
     from auditor.screen import run_screen
 
@@ -410,6 +413,7 @@ AUDIT_BREAKS = {
 
 
 @pytest.mark.parametrize("break_it", list(AUDIT_BREAKS), ids=list(AUDIT_BREAKS))
+@pytest.mark.slow
 def test_a_changed_audit_document_fails_with_its_path(break_it, audit_document, checkers):
     _assert_valid(audit_document, "audit", checkers)
     change, where = AUDIT_BREAKS[break_it]

@@ -26,6 +26,8 @@ from auditor.screen import (FIELDS, MULTIPLE_OUTCOMES_NOTE, SORT_KEYS,
                             outcome_seed, screen)
 from cli_checks import one_line_error as _one_line_error
 
+pytestmark = pytest.mark.slow  # `make check` leaves these out: whole screens are run end to end
+
 DEMO = Path(__file__).resolve().parents[1] / "demo" / "cycling_commute.csv"
 DEMO_ARGS = ("--group", "scheme", "--groups", "buddy,solo")
 BOOT = 200

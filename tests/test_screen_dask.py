@@ -12,6 +12,8 @@ import pytest
 
 from auditor.screen import DASK_MISSING, run_screen
 
+pytestmark = pytest.mark.slow  # `make check` leaves these out: a real Dask LocalCluster is started
+
 DEMO = Path(__file__).resolve().parent.parent / "demo" / "cycling_commute.csv"
 FILES = ("screen.csv", "screen.json", "screen.html")
 

@@ -19,6 +19,8 @@ from auditor.screen import FIELDS, MANY_FIELDS, run_screen, run_screens
 from auditor.sources import expand, read_manifest, sources_from_paths
 from cli_checks import one_line_error as _one_line_error
 
+pytestmark = pytest.mark.slow  # `make check` leaves these out: many files are screened end to end
+
 BOOT = 200
 FILES = ("screen.csv", "screen.json", "screen.html")
 

@@ -178,6 +178,7 @@ def test_p_is_monotone_non_increasing_over_the_whole_range(a, b):
     assert ad.P_FLOOR <= p_hi <= p_lo <= 1.0
 
 
+@pytest.mark.slow
 def test_p_is_monotone_on_a_fine_grid_across_every_junction():
     grid = np.concatenate([np.linspace(0, 2, 20001), np.linspace(2, 250, 5001)])
     p = np.array([ad.p_value(a)[0] for a in grid])

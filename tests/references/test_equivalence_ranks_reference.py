@@ -184,6 +184,7 @@ def both_outcomes(seen):
 
 
 @pytest.mark.parametrize("name", list(TWO))
+@pytest.mark.slow
 def test_hodges_lehmann_interval_agrees_with_verdict(name):
     a, b = TWO[name]
     diffs = np.sort(np.subtract.outer(a, b).ravel())
@@ -235,6 +236,7 @@ def test_paired_takes_pairs_as_columns():
 
 
 @pytest.mark.parametrize("name", list(PAIRED))
+@pytest.mark.slow
 def test_paired_hodges_lehmann_interval_agrees_with_verdict(name):
     d = shifted(PAIRED[name], 0.0)
     i, j = np.triu_indices(d.size)
@@ -290,6 +292,7 @@ def test_ps_dep_p_values_match_score_and_sign_tests(name, margin):
 
 
 @pytest.mark.parametrize("name", list(PAIRED))
+@pytest.mark.slow
 def test_ps_dep_interval_is_wilson_and_agrees_with_verdict(name):
     d = shifted(PAIRED[name], 0.0)
     n = d.size

@@ -258,6 +258,7 @@ def test_holm_on_dunn_p_values_against_statsmodels(name):
     np.testing.assert_allclose(adjust.holm(ps), ref, rtol=1e-12)
 
 
+@pytest.mark.slow
 def test_holm_with_missing_and_tied_p_values():
     # None entries are skipped (m counts only the present p-values); ties keep their order.
     rng = np.random.default_rng(8)

@@ -124,6 +124,7 @@ def test_sign_interval_solves_its_defining_inequality(pos, neg, zero, level):
             assert limit == pytest.approx(root, abs=1e-10)
 
 
+@pytest.mark.slow
 def test_exact_sign_critical_matches_binomtest_at_every_count():
     """|N+ - N-| / sqrt(m) > c exactly when scipy.stats.binomtest rejects, for m = 1..80."""
     for level in (0.9, 0.95, 0.99):
@@ -251,6 +252,7 @@ def _se_of_variance(x):
 
 @pytest.mark.parametrize("n", [3, 5, 10, 30])
 @pytest.mark.parametrize("mu", [0.0, 0.25, 0.8, 1.6])
+@pytest.mark.slow
 def test_moments_against_monte_carlo(n, mu):
     rng = np.random.default_rng(1000 * n + int(100 * mu))
     reps = 60_000

@@ -513,6 +513,7 @@ def test_wilcoxon_against_scipy_and_pingouin(name):
         assert abs(res.details["z"]) == pytest.approx(abs(z), rel=1e-10)
 
 
+@pytest.mark.slow
 def test_signed_rank_exact_p_against_scipy_permutations_and_the_untied_distribution():
     # Property check on invented whole-number differences (3 to 12 of them, with ties and zeros
     # or without): the module's exact p equals scipy.stats.wilcoxon with an explicit
@@ -630,6 +631,7 @@ def test_sign_flip_permutation_exact_against_enumeration_with_zeros_and_ties():
 
 
 @pytest.mark.parametrize("name", ["mixed_anova_aug_vs_jan", "rm_anova_disgust_high_vs_low"])
+@pytest.mark.slow
 def test_sign_flip_permutation_agrees_with_a_large_scipy_run(name):
     x, digits = pair(name)
     d = rounded_d(name)

@@ -211,6 +211,7 @@ def test_exact_critical_value_makes_it_agree_with_the_exact_test(pair, level):
 
 @pytest.mark.parametrize("n_a, n_b", [(1, 1), (2, 3), (3, 3), (4, 7), (6, 6), (9, 5), (12, 15)])
 @pytest.mark.parametrize("level", LEVELS)
+@pytest.mark.slow
 def test_exact_critical_value_over_every_outcome(n_a, n_b, level):
     """For every attainable U, data with that U are built (A values placed between B's
     0, 1, ..., n_B - 1) and scipy's exact p decides; |z| > c must agree."""
