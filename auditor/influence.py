@@ -114,6 +114,26 @@ class Influence(Record):
     changes: dict[str, np.ndarray]
     standardized: dict[str, np.ndarray]
 
+    def __eq__(self, other) -> bool:
+        """Field by field, the per-case columns element by element (undefined entries, NaN,
+        equal to each other), so that two audits of the same data and seed compare equal."""
+        if not isinstance(other, Influence):
+            return NotImplemented
+
+        def same(x, y) -> bool:
+            if isinstance(x, np.ndarray) or isinstance(y, np.ndarray):
+                return (isinstance(x, np.ndarray) and isinstance(y, np.ndarray)
+                        and x.shape == y.shape
+                        and np.array_equal(x, y, equal_nan=x.dtype.kind == "f"))
+            if isinstance(x, dict) and isinstance(y, dict):
+                return x.keys() == y.keys() and all(same(x[k], y[k]) for k in x)
+            return x == y
+
+        return all(same(getattr(self, f.name), getattr(other, f.name))
+                   for f in dataclasses.fields(self))
+
+    __hash__ = None  # holds arrays
+
     @property
     def cases(self) -> list[dict]:
         return self._cases(range(self.rows.size))

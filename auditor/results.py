@@ -42,6 +42,11 @@ def plain(value: Any) -> Any:
     return value
 
 
+def _float_or_none(value):
+    """A number as a Python float (numpy scalars included); None stays None."""
+    return None if value is None else float(value)
+
+
 class Record:
     """Base of the frozen result classes: `to_dict()` gives the object as JSON-ready data
     (`plain`)."""
@@ -237,6 +242,10 @@ class Interval(Record):
     level: float
     note: str | None = None
 
+    def __post_init__(self):  # Python floats, whatever the arithmetic handed in
+        for name in ("low", "high", "level"):
+            object.__setattr__(self, name, _float_or_none(getattr(self, name)))
+
 
 @dataclass(frozen=True)
 class Effect(Record):
@@ -262,6 +271,10 @@ class Effect(Record):
     notes: tuple[str, ...] = ()
     details: dict = field(default_factory=dict)
     bootstrap_reason: str | None = None
+
+    def __post_init__(self):  # Python floats, whatever the arithmetic handed in
+        for name in ("estimate", "ci_low", "ci_high", "null_value"):
+            object.__setattr__(self, name, _float_or_none(getattr(self, name)))
 
     def interval(self, method: str) -> Interval | None:
         for iv in self.intervals:

@@ -122,3 +122,61 @@ def test_the_audit_results_optional_parts_are_typed_and_nullable_in_the_schema()
                "Conversions": "conversions", "Clusters": "clusters"}[name]
         assert set(typing.get_args(hints[key])) == {cls, type(None)}
         assert _allows_null(properties[key], defs)
+
+
+def _walk(value, path="result"):
+    """Every leaf of a result tree with its path (compared fields only)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        for f in dataclasses.fields(value):
+            if f.compare:
+                yield from _walk(getattr(value, f.name), f"{path}.{f.name}")
+    elif isinstance(value, dict):
+        for k, v in value.items():
+            yield from _walk(v, f"{path}[{k!r}]")
+    elif isinstance(value, (list, tuple)):
+        for i, v in enumerate(value):
+            yield from _walk(v, f"{path}[{i}]")
+    else:
+        yield path, value
+
+
+def _four_designs():
+    """Invented data of each design (recovery days under two regimes, three sites, three
+    visits): the result objects' bookkeeping is checked here, not a statistic."""
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng(18)
+    two = pd.DataFrame({"regime": ["brisk"] * 14 + ["gentle"] * 12,
+                        "days": np.round(rng.gamma(4.0, 2.0, 26), 1)})
+    sites = pd.DataFrame({"site": np.repeat(["north", "river", "hill"], 10),
+                          "days": np.round(rng.normal(12, 3, 30), 1)})
+    visits = pd.DataFrame({"id": np.repeat(np.arange(12), 3),
+                           "visit": np.tile(["first", "second", "third"], 12),
+                           "days": np.round(rng.normal(10, 2, 36), 1)})
+    return {"two_independent": dict(data=two, outcome="days", group="regime"),
+            "k_independent": dict(data=sites, outcome="days", group="site"),
+            "paired": dict(data=visits[visits.visit != "third"], outcome="days", group="visit",
+                           subject="id"),
+            "k_repeated": dict(data=visits, outcome="days", group="visit", subject="id")}
+
+
+@pytest.mark.parametrize("design", ["two_independent", "k_independent", "paired", "k_repeated"])
+def test_results_compare_equal_by_value_and_hold_python_floats(design):
+    import warnings
+
+    import numpy as np
+
+    from auditor.pipeline import audit
+
+    options = _four_designs()[design]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        first = audit(resamples=200, **options)
+        again = audit(resamples=200, **options)
+        other = audit(resamples=200, seed=7, **options)
+    assert first.design == design
+    assert first == again
+    assert first != other  # another seed: other bootstrap intervals
+    numpy_scalars = [p for p, v in _walk(first) if isinstance(v, np.generic)]
+    assert not numpy_scalars, numpy_scalars[:5]
