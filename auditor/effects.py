@@ -24,6 +24,7 @@ from auditor import jackknife_signed_ranks as jsr
 from auditor import shifts
 from auditor import catalogue, counting, kgroups, noncentral, paired, ranks
 from auditor.catalogue import Design
+from auditor.inputs import checked
 from auditor import parametric as par
 from auditor.parametric import Estimate
 from auditor.signed_rank_interval import paired_extras
@@ -72,10 +73,12 @@ def _two_a_minus_one(a: np.ndarray) -> np.ndarray:
 
 def _spec(design: Design, name: str, estimate, values, *function, **functions) -> EffectSpec:
     """The registry's entry for `name`: its functions, with its family, no-effect value, range,
-    sign and assumptions from the catalogue (`catalogue.py`)."""
+    sign and assumptions from the catalogue (`catalogue.py`); its estimate checks its inputs
+    (`inputs.checked`: float arrays of the design's shape, a level in (0, 1), None with the
+    reason for missing or non-finite values)."""
     record = catalogue.index(design, name)
     return EffectSpec(name, record.family, record.null_value, record.bounds, record.signed,
-                      record.assumes, estimate, values, *function, **functions)
+                      record.assumes, checked(estimate, design), values, *function, **functions)
 
 
 def two_group_effects(reference: int = 1) -> tuple[EffectSpec, ...]:
