@@ -171,6 +171,18 @@ def equal_spread_tests(*groups: np.ndarray):
     return tuple(out)
 
 
+def _spread_tests(groups, smallest_sd: float, brief: bool, notes: list[str]):
+    """`equal_spread_tests`, or three undefined results with the note saying why: a group with
+    zero spread, or a screen (`brief`), whose checks do not read them."""
+    if smallest_sd == 0:
+        notes.append("a group has zero spread: tests of equal spread are undefined")
+        return ((None, None),) * 3
+    if brief:
+        notes.append(f"tests of equal spread: {BRIEF_NOTE}")
+        return ((None, None),) * 3
+    return equal_spread_tests(*groups)
+
+
 def median_abs_deviation(x: np.ndarray) -> float:
     """median(|x - median(x)|), unscaled: scipy.stats.median_abs_deviation's defaults, by the
     same two medians, without its wrappers."""
@@ -189,14 +201,7 @@ def spread(labels: tuple[str, str], a: np.ndarray, b: np.ndarray, brief: bool = 
     sd = (float(sample_sd(a)), float(sample_sd(b)))
     iqr = (float(stats.iqr(a)), float(stats.iqr(b)))
     mad = (median_abs_deviation(a), median_abs_deviation(b))
-    if min(sd) == 0:
-        notes.append("a group has zero spread: tests of equal spread are undefined")
-        lev = bf = fl = (None, None)
-    elif brief:
-        notes.append(f"tests of equal spread: {BRIEF_NOTE}")
-        lev = bf = fl = (None, None)
-    else:
-        lev, bf, fl = equal_spread_tests(a, b)
+    lev, bf, fl = _spread_tests((a, b), min(sd), brief, notes)
     larger = 0 if sd[0] >= sd[1] else 1
     return Spread(
         sd_ratio=_ratio(*sd), larger_sd_group=labels[larger], iqr_ratio=_ratio(*iqr),
@@ -304,14 +309,7 @@ def k_spread(labels: tuple[str, ...], groups: tuple[np.ndarray, ...],
     sds = [float(sample_sd(g)) for g in groups]
     hi, lo = int(np.argmax(sds)), int(np.argmin(sds))
     notes: list[str] = []
-    if sds[lo] == 0:
-        notes.append("a group has zero spread: tests of equal spread are undefined")
-        lev = bf = fl = (None, None)
-    elif brief:
-        notes.append(f"tests of equal spread: {BRIEF_NOTE}")
-        lev = bf = fl = (None, None)
-    else:
-        lev, bf, fl = equal_spread_tests(*groups)
+    lev, bf, fl = _spread_tests(groups, sds[lo], brief, notes)
     sizes = [g.size for g in groups]
     return KSpread(
         sd_ratio=sds[hi] / sds[lo] if sds[lo] > 0 else None, largest_sd_group=labels[hi],
