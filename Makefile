@@ -37,7 +37,7 @@ demo: $(STAMP)
 test: $(STAMP) $(BROWSER_STAMP)
 	$(PY) -m pytest -q
 
-# The fast tier for the edit-test loop (about 2 minutes on 2 cores): every test not marked slow,
+# The fast tier for the edit-test loop (about two and a half minutes on 2 cores): every test not marked slow,
 # on two worker processes (pytest-xdist). `make test` still runs everything, in one process.
 check: $(STAMP) $(BROWSER_STAMP)
 	$(PY) -m pytest -q -m "not slow" -n 2

@@ -34,11 +34,14 @@ from auditor.results import Interval, Record, plain
 
 CLUSTER_STREAM = 9  # spawn key of the random stream the cluster bootstrap draws from
 FEW_CLUSTERS = 10  # fewer clusters than this in a group: the cluster bootstrap is rough (common practice)
+MIN_CLUSTERS = 3  # fewer clusters than this in a group: no cluster-bootstrap interval
 
 
 @dataclass(frozen=True)
 class ClusterGroup(Record):
-    """One group's clusters: how many, how many cases, and the sizes of its clusters."""
+    """One group's clusters: how many, how many cases, the sizes of its clusters, the design
+    effect of its mean (`design_effect` over its own cluster sizes) and its effective size, its
+    cases divided by that (None when the intraclass correlation is undefined)."""
 
     label: str
     clusters: int
@@ -46,6 +49,8 @@ class ClusterGroup(Record):
     mean_size: float
     smallest: int
     largest: int
+    design_effect: float | None
+    effective_n: float | None
 
 
 @dataclass(frozen=True)
@@ -83,17 +88,16 @@ class ClusterInterval(Record):
 class Clusters(Record):
     """What the audit found about the clustering of the cases (see the module docstring).
 
-    `design_effect` = 1 + (sum_c n_c^2 / N - 1) max(icc, 0), the variance of a mean of all N
-    cases under equal correlation within clusters relative to N independent cases; for clusters
-    of equal size m it is Kish's 1 + (m - 1) icc. `effective_n` is each group's cases divided by
-    it. `intervals` has one entry per two-group index, in the registry's order."""
+    `design_effect` is that of the difference between the two groups' means
+    (`difference_design_effect`): its variance under equal correlation within clusters relative
+    to independent cases, from each group's own design effect (`ClusterGroup`). `intervals` has
+    one entry per two-group index, in the registry's order."""
 
     column: str
     groups: tuple[ClusterGroup, ...]
     shared: tuple[str, ...]
     icc: IntraclassCorrelation
     design_effect: float | None
-    effective_n: tuple[float | None, ...]
     resamples: int
     intervals: tuple[ClusterInterval, ...]
     notes: tuple[str, ...] = ()
@@ -125,6 +129,13 @@ def intraclass_correlation(values, clusters, strata=None) -> IntraclassCorrelati
     y = np.asarray(values, dtype=float)
     cells = _cells(clusters, strata, y.size)
     n_total = y.size
+    # the sums of squares of y / s, s the largest |y|, so that neither huge nor tiny values
+    # overflow or underflow on the way; the mean squares are scaled back (the ratio is exact)
+    scale = float(np.max(np.abs(y))) if y.size else 0.0
+    if scale > 0 and np.isfinite(scale):
+        y = y / scale
+    else:
+        scale = 1.0
     ss_w = ss_b = 0.0
     n_cells, n_strata, size_term = 0, 0, 0.0
     for members in cells:
@@ -145,16 +156,19 @@ def intraclass_correlation(values, clusters, strata=None) -> IntraclassCorrelati
                                             " clusters with")
     n0 = (n_total - size_term) / df_b
     ms_b = ss_b / df_b
+    squared = scale * scale  # may overflow (or underflow) for extreme data: the reported MS only
     if df_w < 1:
-        return IntraclassCorrelation(None, ms_b, None, df_b, df_w, n0,
+        return IntraclassCorrelation(None, ms_b * squared, None, df_b, df_w, n0,
                                      reason="every cluster has a single case: no variation"
                                             " within clusters to compare with")
     ms_w = ss_w / df_w
     denominator = ms_b + (n0 - 1.0) * ms_w
     if not denominator > 0:
-        return IntraclassCorrelation(None, ms_b, ms_w, df_b, df_w, n0,
+        return IntraclassCorrelation(None, ms_b * squared, ms_w * squared, df_b, df_w, n0,
                                      reason="the outcome does not vary within groups")
-    return IntraclassCorrelation((ms_b - ms_w) / denominator, ms_b, ms_w, df_b, df_w, n0)
+    with np.errstate(over="ignore", under="ignore"):
+        return IntraclassCorrelation((ms_b - ms_w) / denominator, float(ms_b * squared),
+                                     float(ms_w * squared), df_b, df_w, n0)
 
 
 def _cells(clusters, strata, n: int) -> list[list[np.ndarray]]:
@@ -180,11 +194,25 @@ def design_effect(icc: float | None, sizes: Sequence[int]) -> float | None:
     variation of the sizes taken with the population SD (from memory). A negative estimate of
     rho is taken as 0 (clustering cannot make cases more informative than independent ones in
     this model)."""
-    if icc is None:
-        return None
     sizes = np.asarray(sizes, dtype=float)
     weighted = float(np.sum(sizes ** 2) / np.sum(sizes))
+    if weighted == 1.0:  # every cluster a single case: nothing is shared, whatever rho is
+        return 1.0
+    if icc is None:
+        return None
     return 1.0 + (weighted - 1.0) * max(float(icc), 0.0)
+
+
+def difference_design_effect(effects: Sequence[float | None],
+                             cases: Sequence[int]) -> float | None:
+    """The design effect of the difference between two groups' means from each group's own,
+    (deff_A / N_A + deff_B / N_B) / (1 / N_A + 1 / N_B): the two means' variances add when no
+    cluster holds cases of both groups (with shared clusters the covariance between the parts
+    is left out)."""
+    if any(e is None for e in effects):
+        return None
+    return (sum(e / n for e, n in zip(effects, cases))
+            / sum(1.0 / n for n in cases))
 
 
 # ------------------------------------------------------------------ resampling clusters
@@ -205,7 +233,8 @@ def _draw(flat, positions, picks) -> np.ndarray:
 
 
 def cluster_replicates(specs, clusters_a: Sequence[np.ndarray], clusters_b: Sequence[np.ndarray],
-                       resamples: int, rng: np.random.Generator) -> dict[str, np.ndarray]:
+                       resamples: int, rng: np.random.Generator,
+                       progress=None) -> dict[str, np.ndarray]:
     """Every index's value on `resamples` cluster resamples of the two groups.
 
     `clusters_a`, `clusters_b`: each group's clusters, one array of values per cluster. Per
@@ -214,17 +243,22 @@ def cluster_replicates(specs, clusters_a: Sequence[np.ndarray], clusters_b: Sequ
     the clusters' positions as its two samples and `batch` = the chunk); resample r is the
     cases of A's picked clusters in the order picked, and B's likewise. Resamples whose groups
     have the same sizes are evaluated together with each index's vectorised `values`, which
-    gives the same numbers as evaluating them one at a time."""
+    gives the same numbers as evaluating them one at a time. Each resample's picks are taken
+    in increasing order (see the loop). `progress(done, resamples)` is called as resamples are
+    evaluated."""
     flat_a, sizes_a, pos_a = _members(clusters_a)
     flat_b, sizes_b, pos_b = _members(clusters_b)
     g_a, g_b = len(clusters_a), len(clusters_b)
     out = {s.name: np.empty(resamples) for s in specs}
     step = chunk_size(int(sizes_a.sum()), int(sizes_b.sum()), resamples)
-    done = 0
+    done = evaluated = 0
     while done < resamples:
         m = min(step, resamples - done)
-        picks_a = rng.integers(0, g_a, (m, g_a))
-        picks_b = rng.integers(0, g_b, (m, g_b))
+        # each resample's clusters in increasing order: the same multiset of clusters (the
+        # resampling distribution is unchanged), so that resamples drawing the same clusters
+        # give the very same value and the count of distinct values is not inflated by rounding
+        picks_a = np.sort(rng.integers(0, g_a, (m, g_a)), axis=1)
+        picks_b = np.sort(rng.integers(0, g_b, (m, g_b)), axis=1)
         n_a, n_b = sizes_a[picks_a].sum(axis=1), sizes_b[picks_b].sum(axis=1)
         shapes = np.stack([n_a, n_b], axis=1)
         for shape in np.unique(shapes, axis=0):
@@ -234,6 +268,9 @@ def cluster_replicates(specs, clusters_a: Sequence[np.ndarray], clusters_b: Sequ
             with np.errstate(all="ignore"):
                 for spec in specs:
                     out[spec.name][done + rows] = spec.values(stacked_a, stacked_b)
+            evaluated += rows.size
+            if progress is not None:
+                progress(evaluated, resamples)
         done += m
     return out
 
@@ -256,18 +293,20 @@ def leave_one_cluster_out(spec, clusters_a, clusters_b) -> tuple[np.ndarray, np.
 
 
 def cluster_bootstrap(specs, estimates: dict[str, float | None], clusters_a, clusters_b,
-                      level: float, resamples: int,
-                      rng: np.random.Generator) -> tuple[ClusterInterval, ...]:
+                      level: float, resamples: int, rng: np.random.Generator,
+                      progress=None) -> tuple[ClusterInterval, ...]:
     """Cluster-bootstrap BCa interval of every index in `specs` (`resampling.bca_interval` on
     `cluster_replicates`, the acceleration from `leave_one_cluster_out`); `estimates` holds each
     index's estimate on the data (None: undefined, no interval)."""
-    few = [len(c) for c in (clusters_a, clusters_b) if len(c) < 2]
-    if few:
-        reason = ("a group has a single cluster: resampling clusters cannot vary it")
+    fewest = min(len(clusters_a), len(clusters_b))
+    if fewest < MIN_CLUSTERS:
+        reason = ("a group has a single cluster: resampling clusters cannot vary it" if fewest < 2
+                  else f"a group has only {fewest} clusters: resamples of so few take a handful"
+                       f" of values (at least {MIN_CLUSTERS} clusters per group are needed)")
         return tuple(ClusterInterval(s.name, estimates.get(s.name), None, 0, reason)
                      for s in specs)
     defined = [s for s in specs if estimates.get(s.name) is not None]
-    replicates = cluster_replicates(defined, clusters_a, clusters_b, resamples, rng)
+    replicates = cluster_replicates(defined, clusters_a, clusters_b, resamples, rng, progress)
     a = np.concatenate([np.asarray(v, dtype=float) for v in clusters_a])
     b = np.concatenate([np.asarray(v, dtype=float) for v in clusters_b])
     out = []
@@ -304,31 +343,38 @@ def by_cluster(values: np.ndarray, labels: Sequence[str]) -> tuple[list[str], li
 
 def clustering(column: str, group_labels: Sequence[str], values: Sequence[np.ndarray],
                cluster_labels: Sequence[Sequence[str]], specs, estimates: dict[str, float | None],
-               level: float, resamples: int, seed: int) -> Clusters:
+               level: float, resamples: int, seed: int, progress=None) -> Clusters:
     """The `Clusters` block of a two-group audit: each group's values with their cluster labels,
     the registry's two-group `specs` and their estimates on the data; the bootstrap draws from
     SeedSequence(seed, spawn_key=(CLUSTER_STREAM,))."""
     names, parts = zip(*(by_cluster(v, labs) for v, labs in zip(values, cluster_labels)))
-    groups = tuple(ClusterGroup(lab, len(p), int(sum(len(x) for x in p)),
-                                float(np.mean([len(x) for x in p])),
-                                int(min(len(x) for x in p)), int(max(len(x) for x in p)))
-                   for lab, p in zip(group_labels, parts))
-    shared = tuple(sorted(set(names[0]) & set(names[1])))
     y = np.concatenate([np.asarray(v, dtype=float) for v in values])
     icc = intraclass_correlation(
         y, [c for labs in cluster_labels for c in labs],
         [g for g, v in zip(group_labels, values) for _ in range(len(v))])
-    sizes = [len(x) for p in parts for x in p]
-    effect = design_effect(icc.icc, sizes)
-    effective = tuple(None if effect is None else g.cases / effect for g in groups)
+    groups = []
+    for lab, p in zip(group_labels, parts):
+        sizes = [len(x) for x in p]
+        effect = design_effect(icc.icc, sizes)
+        groups.append(ClusterGroup(lab, len(p), int(sum(sizes)), float(np.mean(sizes)),
+                                   int(min(sizes)), int(max(sizes)), effect,
+                                   None if effect is None else sum(sizes) / effect))
+    groups = tuple(groups)
+    difference = difference_design_effect([g.design_effect for g in groups],
+                                          [g.cases for g in groups])
+    shared = tuple(sorted(set(names[0]) & set(names[1])))
     rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(CLUSTER_STREAM,)))
-    intervals = cluster_bootstrap(specs, estimates, parts[0], parts[1], level, resamples, rng)
+    intervals = cluster_bootstrap(specs, estimates, parts[0], parts[1], level, resamples, rng,
+                                  progress)
     notes = []
     if shared:
         listed = ", ".join(f"'{s}'" for s in shared[:5]) + (" ..." if len(shared) > 5 else "")
         notes.append(f"{len(shared)} cluster(s) of '{column}' hold cases of both groups"
-                     f" ({listed}): each group's part is resampled within its group, so the"
-                     " correlation between the parts is not carried into the intervals")
+                     f" ({listed}): each group's part is resampled within its group, and the"
+                     " design effects describe each group's mean; the covariance between the"
+                     " parts of one cluster is carried into neither, so the intervals for the"
+                     " difference may be too wide or too narrow; where most clusters hold both"
+                     " groups, an analysis with the clusters as blocks fits the design")
     small = [g for g in groups if g.clusters < FEW_CLUSTERS]
     if small:
         which = ", ".join(f"'{g.label}' {g.clusters}" for g in small)
@@ -339,8 +385,7 @@ def clustering(column: str, group_labels: Sequence[str], values: Sequence[np.nda
         notes.append(f"the intraclass correlation estimate is below 0 ({icc.icc:.3g}): the"
                      " clusters differ less than chance makes them; the design effect takes it"
                      " as 0")
-    return Clusters(column, groups, shared, icc, effect, effective, resamples, intervals,
-                    tuple(notes))
+    return Clusters(column, groups, shared, icc, difference, resamples, intervals, tuple(notes))
 
 
 def clustering_warning(block: Clusters) -> str:
@@ -348,7 +393,13 @@ def clustering_warning(block: Clusters) -> str:
     icc = "undefined" if block.icc.icc is None else f"{block.icc.icc:.3g}"
     effect = "undefined" if block.design_effect is None else f"{block.design_effect:.3g}"
     counts = " and ".join(f"{g.clusters}" for g in block.groups)
+    few = any(g.clusters < FEW_CLUSTERS for g in block.groups)
+    advice = ("the cluster-bootstrap intervals (clusters.intervals) are the ones to quote, and"
+              " with so few clusters they too are rough" if few else
+              "quote the cluster-bootstrap intervals (clusters.intervals)")
+    reading = ("may be too wide or too narrow, as clusters hold cases of both groups"
+               if block.shared else "are too narrow when the correlation is above 0")
     return (f"cases are clustered in '{block.column}' ({counts} clusters; intraclass correlation"
-            f" {icc}, design effect {effect}): every interval except the cluster-bootstrap ones"
-            " assumes independent cases and is too narrow when the correlation is above 0;"
-            " quote the cluster-bootstrap interval (clusters.intervals)")
+            f" {icc}, design effect of the difference {effect}): every interval except the"
+            f" cluster-bootstrap ones, and the test's p-value, assume independent cases and"
+            f" {reading}; {advice}")

@@ -169,14 +169,15 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
             notes = check_independent(table, [outcome, group] + ([cluster] if cluster else []),
                                       group, list(design.labels), overrides)
         check_margin_names(margins, design)
+        if cluster is not None and len(design.labels) != 2:
+            raise DesignError(f"--cluster applies to two independent groups; '{group}' has"
+                              f" {len(design.labels)} here: choose two with --groups")
         labels = cluster_labels(table, design, cluster) if cluster is not None else None
         if len(design.labels) == 2:
             result = _audit_two_groups(design, reference, run)
             if labels is not None:
-                result = with_texts(with_clusters(result, design, cluster, labels), policy)
-        elif cluster is not None:
-            raise DesignError(f"--cluster applies to two independent groups; '{group}' has"
-                              f" {len(design.labels)} here: choose two with --groups")
+                result = with_texts(with_clusters(result, design, cluster, labels, progress),
+                                    policy)
         elif reference is not None:
             raise DesignError("--reference applies to two independent groups only")
         else:
@@ -210,8 +211,9 @@ def cluster_labels(table: Table, design: Groups, cluster: str) -> tuple[tuple[st
         for line in rows:
             label = column[position[int(line)]].strip()
             if is_missing(label):
+                what = "is empty" if not label else f"holds the missing-value marker '{label}'"
                 raise DesignError(f"{table.path}, line {int(line)}: the cluster column"
-                                  f" '{cluster}' is empty; every case needs its cluster for"
+                                  f" '{cluster}' {what}; every case needs its cluster for"
                                   " --cluster (fill it in, or leave the row out of the file)")
             found.append(label)
         out.append(tuple(found))
@@ -219,7 +221,7 @@ def cluster_labels(table: Table, design: Groups, cluster: str) -> tuple[tuple[st
 
 
 def with_clusters(result: AuditResult, design: Groups, cluster: str,
-                  labels: tuple[tuple[str, ...], ...]) -> AuditResult:
+                  labels: tuple[tuple[str, ...], ...], progress: Progress = None) -> AuditResult:
     """The two-group result with `clusters` (`clusters.clustering`: the intraclass correlation,
     the design effect and every index's cluster-bootstrap interval, from the audit's level,
     resamples and seed) and its warning."""
@@ -229,7 +231,7 @@ def with_clusters(result: AuditResult, design: Groups, cluster: str,
     specs = two_group_effects(_reference_index(design.labels, settings.reference))
     estimates = {e.name: e.estimate for e in result.effects}
     block = clustering(cluster, design.labels, design.values, labels, specs, estimates,
-                       settings.level, settings.bootstrap_resamples, settings.seed)
+                       settings.level, settings.bootstrap_resamples, settings.seed, progress)
     return dataclasses.replace(result, clusters=block,
                                warnings=tuple(result.warnings) + (clustering_warning(block),)
                                + tuple(f"clusters: {n}" for n in block.notes))

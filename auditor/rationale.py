@@ -271,7 +271,8 @@ def _cluster_remarks(result, decision, dec: int) -> list[str]:
     icc = "undefined" if block.icc.icc is None else fmt(block.icc.icc, dec)
     effect = "undefined" if block.design_effect is None else fmt(block.design_effect, dec)
     text = (f"The cases are clustered in '{block.column}' (intraclass correlation {icc}, design"
-            f" effect {effect}), and the quoted interval assumes independent cases.")
+            f" effect of the difference {effect}), and the quoted interval and the test assume"
+            " independent cases.")
     found = block.interval(decision.primary)
     primary = result.effect(decision.primary)
     if found is None or found.interval is None:

@@ -206,15 +206,14 @@ def _cluster_lines(result) -> list[str]:
     if block is None:
         return []
     icc = block.icc
-    counts = ", ".join(f"{g.label} {g.clusters} clusters of {g.mean_size:.3g} cases on average"
-                       for g in block.groups)
-    effect = ("undefined" if block.design_effect is None else
-              f"{_n(block.design_effect)} (effective sizes "
-              + " and ".join(_n(x, 1) for x in block.effective_n) + ")")
+    counts = "; ".join(
+        f"{g.label} {g.clusters} clusters of {g.mean_size:.3g} cases on average (design effect"
+        f" {_n(g.design_effect)}, effective size {_n(g.effective_n, 1)})" for g in block.groups)
     lines = [f"Cases are clustered in {block.column}: {counts}. Intraclass correlation"
              f" {_n(icc.icc) if icc.icc is not None else 'undefined (' + str(icc.reason) + ')'},"
-             f" design effect {effect}. The intervals above assume independent cases; the"
-             " cluster-bootstrap intervals below resample whole clusters within each group."]
+             f" design effect of the difference {_n(block.design_effect)}. The intervals above"
+             " assume independent cases; the cluster-bootstrap intervals below resample whole"
+             " clusters within each group."]
     for e in result.effects:
         found = block.interval(e.name)
         if found is None or e.estimate is None:

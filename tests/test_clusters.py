@@ -131,6 +131,31 @@ def test_icc_is_unchanged_by_location_and_scale_and_by_the_order_of_cases(seed, 
     assert base <= 1.0
 
 
+@pytest.mark.parametrize("scale", [1e200, 1e-300])
+def test_icc_of_huge_or_tiny_values_is_that_of_ordinary_ones(scale):
+    rng = np.random.default_rng(16)
+    frame = _frame(_clusters(rng, 6, [3, 5]), _clusters(rng, 5, [2, 4]))
+    base = intraclass_correlation(frame.y, frame.c, frame.g)
+    scaled = intraclass_correlation(frame.y * scale, frame.c, frame.g)
+    assert scaled.icc == pytest.approx(base.icc, abs=1e-9)
+
+
+def test_a_cluster_holding_both_groups_is_one_cell_per_group_in_the_icc():
+    """The nested ANOVA with cells group x cluster (statsmodels), where a shared label names
+    two cells."""
+    rng = np.random.default_rng(17)
+    frame = _frame(_clusters(rng, 6, [3, 4]), _clusters(rng, 5, [2, 5]))
+    frame["c"] = frame["c"].str[1:]  # clusters 0-4 now hold cases of both groups
+    cells = frame.g + ":" + frame.c
+    fit_g = smf.ols("y ~ C(g)", frame).fit()
+    fit_c = smf.ols("y ~ C(cell)", frame.assign(cell=cells)).fit()
+    table = sm.stats.anova_lm(fit_g, fit_c)
+    ours = intraclass_correlation(frame.y, frame.c, frame.g)
+    assert ours.df_between == int(table.df_diff[1]) == 11 - 2
+    assert ours.ms_between == pytest.approx(table.ss_diff[1] / table.df_diff[1], rel=1e-10)
+    assert ours.ms_within == pytest.approx(fit_c.mse_resid, rel=1e-10)
+
+
 def test_icc_is_one_when_every_cluster_is_constant():
     values = [1.0, 1.0, 1.0, 4.0, 4.0, 2.5, 2.5, 2.5, 2.5]
     assert intraclass_correlation(values, list("pppqqrrrr")).icc == pytest.approx(1.0, abs=1e-12)
@@ -156,6 +181,39 @@ def test_design_effect_is_the_variance_of_a_mean_under_equal_correlation_within_
     assert design_effect(rho, sizes) == pytest.approx(float(w @ cov @ w) * n, rel=1e-12)
     if len(set(sizes)) == 1:
         assert design_effect(rho, sizes) == pytest.approx(1 + (sizes[0] - 1) * rho, rel=1e-12)
+
+
+def _variance_ratio(rho, sizes_a, sizes_b=None):
+    """Var(mean of A) (or Var(mean A - mean B)) under equal correlation rho within clusters,
+    over its value for independent cases: w' S w / w' w, computed with numpy's linear algebra
+    (S = (1 - rho) I + rho within-cluster blocks; w = 1/N_A on A's cases, -1/N_B on B's)."""
+    sizes = list(sizes_a) + list(sizes_b or [])
+    n = sum(sizes)
+    blocks = np.zeros((n, n))
+    start = 0
+    for m in sizes:
+        blocks[start:start + m, start:start + m] = 1.0
+        start += m
+    cov = (1 - max(rho, 0.0)) * np.eye(n) + max(rho, 0.0) * blocks
+    n_a = sum(sizes_a)
+    w = np.r_[np.full(n_a, 1.0 / n_a), np.full(n - n_a, -1.0 / max(n - n_a, 1))]
+    return float(w @ cov @ w) / float(w @ w)
+
+
+@pytest.mark.parametrize("rho", [0.0, 0.12, 0.45])
+def test_the_difference_s_design_effect_is_its_variance_ratio(rho):
+    from auditor.clusters import difference_design_effect
+
+    sizes_a, sizes_b = [20] * 10, [1] * 200  # large clusters against single cases
+    effects = [design_effect(rho, sizes_a), design_effect(rho, sizes_b)]
+    assert effects[1] == 1.0
+    assert difference_design_effect(effects, [200, 200]) == pytest.approx(
+        _variance_ratio(rho, sizes_a, sizes_b), rel=1e-12)
+
+
+def test_clusters_of_single_cases_have_design_effect_one_whatever_the_icc():
+    assert design_effect(None, [1, 1, 1, 1]) == 1.0
+    assert design_effect(0.7, [1, 1, 1]) == 1.0
 
 
 def test_a_negative_icc_gives_no_design_effect_below_one():
@@ -201,8 +259,10 @@ def test_cluster_replicates_are_a_plain_loop_over_resampled_clusters_with_the_sa
     resamples = 300
     ours = cluster_replicates(specs, parts_a, parts_b, resamples, np.random.default_rng(21))
     rng = np.random.default_rng(21)
-    picks_a = rng.integers(0, len(parts_a), (resamples, len(parts_a)))
-    picks_b = rng.integers(0, len(parts_b), (resamples, len(parts_b)))
+    # the same draws, each resample's clusters taken in increasing order (a reordering within
+    # the resample: the same multiset of clusters)
+    picks_a = np.sort(rng.integers(0, len(parts_a), (resamples, len(parts_a))), axis=1)
+    picks_b = np.sort(rng.integers(0, len(parts_b), (resamples, len(parts_b))), axis=1)
     for r in range(resamples):
         x = np.concatenate([parts_a[c] for c in picks_a[r]])
         y = np.concatenate([parts_b[c] for c in picks_b[r]])
@@ -269,6 +329,47 @@ def test_a_group_with_one_cluster_has_no_cluster_interval():
     assert found.interval is None and "single cluster" in found.reason
 
 
+def test_two_clusters_in_a_group_give_no_cluster_interval():
+    parts_a, parts_b = _two_groups(13)
+    spec = two_group_effects()[0]
+    (found,) = cluster_bootstrap([spec], {spec.name: 0.3}, parts_a[:2], parts_b, 0.95, 300,
+                                 np.random.default_rng(2))
+    assert found.interval is None and "only 2 clusters" in found.reason
+
+
+def test_resamples_of_the_same_clusters_give_the_same_value():
+    """Each resample's clusters are taken in increasing order, so two resamples drawing the
+    same clusters in another order give one value, not two that differ by rounding."""
+    rng = np.random.default_rng(14)
+    parts_a = [rng.normal(0.3, 1, 4) for _ in range(3)]
+    parts_b = [rng.normal(0.0, 1, 5) for _ in range(3)]
+    spec = two_group_effects()[0]
+    values = cluster_replicates([spec], parts_a, parts_b, 2000, np.random.default_rng(3))
+    multisets = 10 * 10  # C(3 + 3 - 1, 3) ways to draw three of three clusters, per group
+    assert np.unique(values[spec.name]).size <= multisets
+
+
+def test_cluster_bootstrap_over_several_chunks_is_scipys_too(monkeypatch):
+    import auditor.resampling as resampling
+
+    monkeypatch.setattr(resampling, "CHUNK_VALUES", 2_000)
+    parts_a, parts_b = _two_groups(15)
+    a, b = np.concatenate(parts_a), np.concatenate(parts_b)
+    step = chunk_size(a.size, b.size, 700)
+    assert step < 700  # several chunks
+    spec = next(s for s in two_group_effects() if s.name == "mean_difference")
+    (found,) = cluster_bootstrap([spec], {spec.name: spec.estimate(a, b, 0.95).value}, parts_a,
+                                 parts_b, 0.95, 700, np.random.default_rng(8))
+    ref = st.bootstrap((np.arange(len(parts_a)), np.arange(len(parts_b))),
+                       lambda ia, ib: _by_hand("mean_difference",
+                                               np.concatenate([parts_a[i] for i in ia]),
+                                               np.concatenate([parts_b[i] for i in ib])),
+                       vectorized=False, method="BCa", n_resamples=700, batch=step,
+                       rng=np.random.default_rng(8))
+    assert found.interval.low == pytest.approx(ref.confidence_interval.low, abs=1e-12)
+    assert found.interval.high == pytest.approx(ref.confidence_interval.high, abs=1e-12)
+
+
 def test_by_cluster_keeps_first_appearance_and_file_order():
     names, parts = by_cluster(np.array([1.0, 2.0, 3.0, 4.0]), ["q", "p", "q", "p"])
     assert names == ["q", "p"]
@@ -316,8 +417,14 @@ def test_audit_with_a_cluster_column_reports_icc_design_effect_and_cluster_inter
     assert [g.cases for g in block.groups] == [g.n for g in result.groups]
     assert block.icc.icc == pytest.approx(
         intraclass_correlation(frame.score, frame["class"], frame.approach).icc, abs=1e-12)
-    sizes = frame.groupby("class").size()
-    assert block.design_effect == pytest.approx(design_effect(block.icc.icc, sizes), abs=1e-12)
+    sizes = {g: frame[frame.approach == g].groupby("class").size().tolist()
+             for g in ("tutored", "usual")}
+    for g in block.groups:
+        assert g.design_effect == pytest.approx(_variance_ratio(block.icc.icc, sizes[g.label]),
+                                                rel=1e-12)
+        assert g.effective_n == pytest.approx(g.cases / g.design_effect, rel=1e-12)
+    assert block.design_effect == pytest.approx(
+        _variance_ratio(block.icc.icc, sizes["tutored"], sizes["usual"]), rel=1e-12)
     assert [c.index for c in block.intervals] == [e.name for e in result.effects]
     for e in result.effects:
         assert block.interval(e.name).estimate == e.estimate
@@ -345,6 +452,29 @@ def test_the_cluster_bootstrap_draws_its_own_stream_of_the_seed(pupils):
     direct = cluster_bootstrap(specs, {e.name: e.estimate for e in first.effects}, parts[0],
                                parts[1], first.settings.level, 400, rng)
     assert direct == first.clusters.intervals
+
+
+def test_huge_values_with_clusters_give_a_document_not_a_crash(write_file, tmp_path, run_cli):
+    text = _pupils()
+    lines = text.splitlines()
+    scaled = [lines[0]] + [",".join(r.split(",")[:2] + [f"{float(r.split(',')[2]) * 1e200:.6g}"])
+                           for r in lines[1:]]
+    path = write_file("huge.csv", "\n".join(scaled) + "\n")
+    res = run_cli("check", path, "--outcome", "score", "--group", "approach", "--cluster",
+                  "class", "--boot", "200", "--json", tmp_path / "huge.json", "--quiet")
+    assert res.code == 0, res.err
+    document = json.loads((tmp_path / "huge.json").read_text())
+    assert document["clusters"]["icc"]["icc"] is not None
+
+
+def test_a_missing_value_marker_in_the_cluster_column_is_named(run_cli, write_file, tmp_path):
+    text = _pupils().splitlines()
+    first = text[5].split(",")
+    text[5] = ",".join([first[0], "NA", first[2]])
+    path = write_file("marker.csv", "\n".join(text) + "\n")
+    res = run_cli("check", path, "--outcome", "score", "--group", "approach", "--cluster",
+                  "class", "--boot", "200")
+    one_line_error(res, "line 6", "missing-value marker 'NA'")
 
 
 def test_a_cluster_holding_both_groups_is_noted(write_file):
@@ -413,3 +543,12 @@ def test_cluster_column_names_are_escaped_in_html(write_file, tmp_path, run_cli)
     assert res.code == 0, res.err
     page = (out / "report.html").read_text()
     assert "<b>room</b>" not in page and "&lt;b&gt;room&lt;/b&gt;" in page
+
+
+def test_k_groups_are_refused_before_the_cluster_cells_are_read(write_file):
+    text = _pupils(groups=("tutored", "usual", "peer")).splitlines()
+    first = text[3].split(",")
+    text[3] = ",".join([first[0], "", first[2]])
+    path = write_file("three_gap.csv", "\n".join(text) + "\n")
+    with pytest.raises(DesignError, match="two independent groups; 'approach' has 3"):
+        _quiet_audit(path, cluster="class")

@@ -146,7 +146,6 @@ def test_ci_has_a_browser():
 # The network
 
 
-@pytest.mark.slow
 def test_opening_the_report_makes_no_network_request(browsed):
     assert browsed.page_requests == [], (
         "the report made the browser reach for the network:\n  "
