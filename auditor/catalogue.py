@@ -12,11 +12,12 @@ kept because policy files written by users name their tables so.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from enum import Enum
+from enum import StrEnum
 
 
-class Design(str, Enum):
-    """The four designs the audit covers; the value is the JSON document's `design`."""
+class Design(StrEnum):
+    """The four designs the audit covers; the value is the JSON document's `design` (a member
+    is that text, compares and hashes as it, and prints as it)."""
 
     TWO_INDEPENDENT = "two_independent"
     PAIRED = "paired"

@@ -218,6 +218,18 @@ def verdict_of(p_tost: float, p_minimal_effect: float, p_difference: float,
     return UNDECIDED
 
 
+def opening(index: str, method: str, null: float, bounds, alpha: float, *samples,
+            paired: bool = False):
+    """The start every two one-sided tests share: `make(estimate, reason)`, an undefined result
+    of this index and method, and that result already when the samples leave the tests
+    undefined (`input_problem`), else None."""
+    def make(estimate, reason, notes=()):
+        return undefined_result(index, method, estimate, null, bounds, alpha, reason, notes)
+
+    reason = input_problem(*samples, paired=paired)
+    return make, (None if reason is None else make(None, reason))
+
+
 def undefined_result(index, method, estimate, null, bounds, alpha, reason, notes=()):
     est = None if estimate is None or not math.isfinite(estimate) else float(estimate)
     return EquivalenceResult(index, method, est, null, bounds[0], bounds[1], alpha, None, None,
@@ -423,11 +435,9 @@ def prob_superiority_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResul
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.5, 0.0, 1.0)
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
-    make = lambda est, reason: undefined_result("prob_superiority", "brunner_munzel_t",  # noqa: E731
-                                          est, 0.5, bounds, alpha, reason)
-    reason = input_problem(a, b)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("prob_superiority", "brunner_munzel_t", 0.5, bounds, alpha, a, b)
+    if undefined is not None:
+        return undefined
     with np.errstate(all="ignore"):
         a_hat, var, df = ranks.brunner_munzel_parts(a, b)
     if not var > 0:
@@ -486,11 +496,9 @@ def d_unpooled_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.0)
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
-    make = lambda est, reason: undefined_result("d_unpooled", "noncentral_t_welch", est,  # noqa: E731
-                                                0.0, bounds, alpha, reason)
-    reason = input_problem(a, b)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("d_unpooled", "noncentral_t_welch", 0.0, bounds, alpha, a, b)
+    if undefined is not None:
+        return undefined
     ma, va, na = mean_var(a)
     mb, vb, nb = mean_var(b)
     va, vb = float(va), float(vb)
@@ -517,11 +525,9 @@ def glass_delta_tost(a, b, margin, alpha: float = 0.05, reference: int = 1) -> E
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.0)
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
-    make = lambda est, reason: undefined_result("glass_delta", "normal_approximation", est,  # noqa: E731
-                                                0.0, bounds, alpha, reason)
-    reason = input_problem(a, b)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("glass_delta", "normal_approximation", 0.0, bounds, alpha, a, b)
+    if undefined is not None:
+        return undefined
     ref, other = (b, a) if reference == 1 else (a, b)
     v_ref, v_other = float(mean_var(ref)[1]), float(mean_var(other)[1])
     if not v_ref > 0:
@@ -551,11 +557,9 @@ def paired_mean_difference_tost(x_or_d, margin, alpha: float = 0.05, *,
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.0)
     d = paired_differences(x_or_d, digits)
-    make = lambda est, reason: undefined_result("mean_difference", "paired_t", est, 0.0,  # noqa: E731
-                                          bounds, alpha, reason)
-    reason = input_problem(d, paired=True)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("mean_difference", "paired_t", 0.0, bounds, alpha, d, paired=True)
+    if undefined is not None:
+        return undefined
     m, v, n = mean_var(d)
     m, v = float(m), float(v)
     if v == 0:

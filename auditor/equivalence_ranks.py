@@ -55,8 +55,7 @@ from scipy import special, stats
 
 from auditor import paired, ranks
 from auditor.equivalence import (EquivalenceResult, assemble, check_alpha, check_bounds,
-                                 data_vector, input_problem, paired_differences,
-                                 undefined_result)
+                                 data_vector, opening, paired_differences)
 
 EXACT = "exact"
 NORMAL = "normal_approximation"
@@ -159,11 +158,9 @@ def hodges_lehmann_tost(a, b, margin, alpha: float = 0.05) -> EquivalenceResult:
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.0)
     a, b = data_vector(a, "group a"), data_vector(b, "group b")
-    make = lambda est, reason: undefined_result(  # noqa: E731
-        "hodges_lehmann", "mann_whitney_shift", est, 0.0, bounds, alpha, reason)
-    reason = input_problem(a, b)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("hodges_lehmann", "mann_whitney_shift", 0.0, bounds, alpha, a, b)
+    if undefined is not None:
+        return undefined
     shift = ranks.hodges_lehmann(a, b, 1.0 - 2.0 * alpha)
     if np.ptp(a) == 0 and np.ptp(b) == 0:
         return make(shift.value, "both groups are constant: the rank tests only see whether"
@@ -250,11 +247,10 @@ def paired_hodges_lehmann_tost(x_or_d, margin, alpha: float = 0.05, *,
     alpha = check_alpha(alpha)
     bounds = check_bounds(margin, 0.0)
     d = paired_differences(x_or_d, digits)
-    make = lambda est, reason: undefined_result("hodges_lehmann", "signed_rank_shift",  # noqa: E731
-                                                est, 0.0, bounds, alpha, reason)
-    reason = input_problem(d, paired=True)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("hodges_lehmann", "signed_rank_shift", 0.0, bounds,
+                              alpha, d, paired=True)
+    if undefined is not None:
+        return undefined
     d = _shifted(d, 0.0, digits)
     shift = paired.hodges_lehmann(d, np.zeros(d.size), 1.0 - 2.0 * alpha, digits)
     if np.ptp(d) == 0:
@@ -306,11 +302,9 @@ def ps_dep_tost(x_or_d, margin, alpha: float = 0.05, *, digits: int = 12) -> Equ
                          " or 1, where the score test of a proportion has no variance; keep them"
                          " strictly inside (0, 1), for example margin=0.2")
     d = paired_differences(x_or_d, digits)
-    make = lambda est, reason: undefined_result("ps_dep", "score_wilson", est, 0.5,  # noqa: E731
-                                                bounds, alpha, reason)
-    reason = input_problem(d, paired=True)
-    if reason:
-        return make(None, reason)
+    make, undefined = opening("ps_dep", "score_wilson", 0.5, bounds, alpha, d, paired=True)
+    if undefined is not None:
+        return undefined
     est = paired.ps_dep(d, np.zeros(d.size), 1.0 - 2.0 * alpha, digits)
     pos, zero, n = est.details["n_positive"], est.details["n_zero"], est.details["n"]
     neg = n - pos - zero

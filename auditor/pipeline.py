@@ -13,6 +13,7 @@ import numpy as np
 
 from auditor import (__version__, adjust, catalogue, diagnostics, kgroups, paired, rationale,
                      significance)
+from auditor.catalogue import Design
 from auditor.decide import (MEAN_INDEX, POLICY_DESIGN, choose, decide, extreme_rows,
                             test_matched_effect)
 from auditor.design import (Groups, Repeated, independent_groups, is_missing, long_repeated,
@@ -185,7 +186,7 @@ def audit(data, *, outcome: str | None = None, group: str | None = None,
     if notes:
         result = dataclasses.replace(result, warnings=tuple(result.warnings) + notes)
     result = with_equivalence(result, policy, margins or {})
-    if result.design == "two_independent":
+    if result.design == Design.TWO_INDEPENDENT:
         result = dataclasses.replace(result, conversions=scale_conversions(result))
     return with_coverage_check(result, policy) if coverage else result
 
@@ -252,14 +253,13 @@ def check_margin_names(given, design: Groups | Repeated) -> None:
     if not given:
         return
     k = len(design.labels)
-    key = (("two_groups" if k == 2 else "k_groups") if isinstance(design, Groups)
-           else ("paired" if k == 2 else "k_repeated"))
-    names = INDICES[key]
+    kind = ((Design.TWO_INDEPENDENT if k == 2 else Design.K_INDEPENDENT)
+            if isinstance(design, Groups) else (Design.PAIRED if k == 2 else Design.K_REPEATED))
+    names = INDICES[kind.policy_table]
     unknown = sorted(set(given) - set(names))
     if unknown:
-        what = {"two_groups": "two independent groups", "k_groups": f"{k} independent groups",
-                "paired": "two paired conditions", "k_repeated": f"{k} repeated conditions"}
-        raise DesignError(f"--margin {unknown[0]}: not an index of {what[key]}; use one of"
+        what = kind.words if k == 2 else f"{k} {kind.words}"
+        raise DesignError(f"--margin {unknown[0]}: not an index of {what}; use one of"
                           f" {', '.join(names)}")
 
 
@@ -277,7 +277,7 @@ def with_equivalence(result: AuditResult, policy: Policy,
     chosen = margin_choice(result.effects, policy, given)
     if not chosen or result.samples is None:
         return result
-    if result.design == "paired":
+    if result.design == Design.PAIRED:
         samples = (result.samples.differences,)
     else:
         samples = tuple(result.samples.values)
@@ -337,10 +337,10 @@ def with_coverage_check(result: AuditResult, policy: Policy,
         return dataclasses.replace(result, warnings=result.warnings + (note,))
     labels = tuple(g.label for g in result.groups)
     values = result.samples.values
-    if result.design == "two_independent":
+    if result.design == Design.TWO_INDEPENDENT:
         reference = labels.index(result.settings.reference) if result.settings.reference else 1
         specs, samples = two_group_effects(reference), tuple(values)
-    elif result.design == "k_independent":
+    elif result.design == Design.K_INDEPENDENT:
         specs, samples = k_independent_effects(), tuple(values)
     else:
         x = np.column_stack(values)
@@ -469,9 +469,9 @@ def _influence(specs, effects, samples, loo, units, settings, design: str, diag)
     if settings.screen:
         mean = MEAN_INDEX[POLICY_DESIGN[design]]
         specs = tuple(s for s in specs if s.name == mean and s.name in loo)
-        outliers = {"two_independent": getattr(diag, "outliers", None),
-                    "k_independent": getattr(diag, "outliers", None),
-                    "paired": (getattr(diag, "differences_outliers", None),)}.get(design)
+        outliers = {Design.TWO_INDEPENDENT: getattr(diag, "outliers", None),
+                    Design.K_INDEPENDENT: getattr(diag, "outliers", None),
+                    Design.PAIRED: (getattr(diag, "differences_outliers", None),)}.get(design)
         rows = (None if outliers is None
                 else frozenset(extreme_rows(outliers, policy.value("outliers", "rule"))))
         return influence_table(specs, effects, samples, loo, units, settings.level,
@@ -579,14 +579,14 @@ def _audit_two_groups(design: Groups, reference, settings: RunSettings):
     a, b = design.a, design.b
     specs = two_group_effects(ref_index)
     effects, notes, loo = _estimate(specs, (a, b), settings, np.random.default_rng(seed),
-                                    progress, "two_independent")
+                                    progress, Design.TWO_INDEPENDENT)
     units = _group_units(design)
     diag = _diagnose_two(design, effects, scope == "screen")
-    result = _result("two_independent", design.outcome, design.group_column,
+    result = _result(Design.TWO_INDEPENDENT, design.outcome, design.group_column,
                      _summaries(design.labels, design.values, design.missing), design.account,
                      diag, effects, notes, settings, design.labels[ref_index],
                      influence=_influence(specs, effects, (a, b), loo, units, settings,
-                                          "two_independent", diag))
+                                          Design.TWO_INDEPENDENT, diag))
     return _decided(result, (a, b), policy,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(seed)))
 
@@ -603,7 +603,7 @@ def _audit_k_groups(design: Groups, settings: RunSettings):
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
     first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_independent_effects()
-    effects, notes, loo = _estimate(specs, groups, settings, rngs[0], progress, "k_independent")
+    effects, notes, loo = _estimate(specs, groups, settings, rngs[0], progress, Design.K_INDEPENDENT)
     pairwise = []
     if scope == "screen":
         notes.append(SCREEN_NO_PAIRS)
@@ -621,12 +621,12 @@ def _audit_k_groups(design: Groups, settings: RunSettings):
                     for (i, j, eff, z), p, ph in zip(comparisons, dunn_p, holm)]
     diag = diagnostics.k_screen(design.labels, groups, design.rows, brief=scope == "screen")
     units = _group_units(design)
-    result = _result("k_independent", design.outcome, design.group_column,
+    result = _result(Design.K_INDEPENDENT, design.outcome, design.group_column,
                      _summaries(design.labels, groups, design.missing), design.account, diag,
                      effects, notes, settings,
                      tests=kgroups.independent_tests(groups), pairwise=pairwise,
                      influence=_influence(specs, effects, groups, loo, units, settings,
-                                          "k_independent", diag))
+                                          Design.K_INDEPENDENT, diag))
     return _decided(result, groups, policy,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 
@@ -642,7 +642,7 @@ def _audit_repeated(design: Repeated, outcome, settings: RunSettings):
     if x.shape[1] == 2:
         specs = paired_effects(digits)
         effects, notes, loo = _estimate(specs, (x,), settings, np.random.default_rng(seed),
-                                        progress, "paired")
+                                        progress, Design.PAIRED)
         d = paired.differences(x, digits)
         diag = diagnostics.paired_screen((labels[0], labels[1]), x[:, 0], x[:, 1], d,
                                          design.rows, digits, paired.sign_test(d),
@@ -650,19 +650,19 @@ def _audit_repeated(design: Repeated, outcome, settings: RunSettings):
         tests = {"sign_test": diag.sign_test, "wilcoxon": _wilcoxon(x, digits),
                  "paired_t": _paired_t(x, digits)}
         units = _participant_units(design, d)
-        result = _result("paired", outcome, design.group_column,
+        result = _result(Design.PAIRED, outcome, design.group_column,
                          _summaries(labels, columns, design.missing),
                          design.account, diag, effects, notes, settings,
                          subject=design.subject_column, tests=tests,
                          influence=_influence(specs, effects, (x,), loo, units, settings,
-                                              "paired", diag))
+                                              Design.PAIRED, diag))
         return _decided(result, (x,), policy, digits, work=_work(
             specs, loo, units, settings, lambda: np.random.default_rng(seed)))
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
     rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
     first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_repeated_effects()
-    effects, notes, loo = _estimate(specs, (x,), settings, rngs[0], progress, "k_repeated")
+    effects, notes, loo = _estimate(specs, (x,), settings, rngs[0], progress, Design.K_REPEATED)
     pairwise = []
     if scope == "screen":
         notes.append(SCREEN_NO_PAIRS)
@@ -683,13 +683,13 @@ def _audit_repeated(design: Repeated, outcome, settings: RunSettings):
     cell_rows = tuple(design.cell_rows[:, k] for k in range(x.shape[1]))
     diag = diagnostics.k_screen(labels, columns, cell_rows, sphericity, brief=scope == "screen")
     units = _participant_units(design, None)
-    result = _result("k_repeated", outcome, design.group_column,
+    result = _result(Design.K_REPEATED, outcome, design.group_column,
                      _summaries(labels, columns, design.missing),
                      design.account, diag, effects, notes, settings,
                      subject=design.subject_column, tests=kgroups.repeated_tests(x, labels),
                      pairwise=pairwise,
                      influence=_influence(specs, effects, (x,), loo, units, settings,
-                                          "k_repeated", diag))
+                                          Design.K_REPEATED, diag))
     return _decided(result, (x,), policy, digits,
                     work=_work(specs, loo, units, settings, lambda: np.random.default_rng(first)))
 

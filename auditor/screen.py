@@ -644,8 +644,9 @@ def _common(policy, seed, resamples, level, margins, reports, out, overrides=())
 
 
 def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, engine, scheduler):
-    """Run every plan's batches on the engine, spool the rows, adjust the p-values and write
-    the outputs (or return the rows)."""
+    """Run every plan's batches on the engine and spool the rows; then `_adjust` the p-values
+    and `_write_outputs` (or return the rows). The stages: `_plan` (per file), this run,
+    `_adjust`, `_write_outputs`."""
     many = plans[0].label is not None
     jobs_of = tuple(plan.job for plan in plans)
     tasks = [(k, names, table) for k, plan in enumerate(plans)
@@ -703,17 +704,7 @@ def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, eng
             found = list(plan.skipped) + skipped[k]
             found.sort(key=lambda s: (s[0] not in plan.excluded, place.get(s[0], -1)))
             listed += [(plan.label, c, r) if many else (c, r) for c, r in found]
-        adjusted = [holm(pvalues), benjamini_hochberg(pvalues)]
-        if many:  # and within each file
-            within = [[None] * len(pvalues), [None] * len(pvalues)]
-            rows_of = [[] for _ in plans]
-            for i, (k, _) in enumerate(position):
-                rows_of[k].append(i)
-            for members in rows_of:
-                for a, method in enumerate((holm, benjamini_hochberg)):
-                    for i, value in zip(members, method([pvalues[i] for i in members])):
-                        within[a][i] = value
-            adjusted += within
+        adjusted = _adjust(pvalues, [k for k, _ in position] if many else None, len(plans))
         if sort == "outcome" and many:
             keys = [(key, position[i][0]) for i, key in enumerate(keys)]
         order = sorted(range(len(offsets)), key=lambda i: (keys[i], i))
@@ -744,6 +735,24 @@ def _execute(plans: list[_Plan], *, policy, seed, jobs, out, sort, progress, eng
                 spool_path.unlink()
             except OSError:
                 pass
+
+
+def _adjust(pvalues: list, files: list[int] | None, count: int) -> list[list]:
+    """The adjusted p-values of the rows (in (file, column) order): Holm and Benjamini-Hochberg
+    across all rows, and, when `files` gives each row's file (a screen of many), within each of
+    the `count` files too: [holm, bh] or [holm, bh, holm within file, bh within file]."""
+    adjusted = [holm(pvalues), benjamini_hochberg(pvalues)]
+    if files is None:
+        return adjusted
+    within = [[None] * len(pvalues), [None] * len(pvalues)]
+    rows_of = [[] for _ in range(count)]
+    for i, k in enumerate(files):
+        rows_of[k].append(i)
+    for members in rows_of:
+        for a, method in enumerate((holm, benjamini_hochberg)):
+            for i, value in zip(members, method([pvalues[i] for i in members])):
+                within[a][i] = value
+    return adjusted + within
 
 
 def _check_columns(header: tuple[str, ...], names: list[str], path: str) -> None:
