@@ -169,16 +169,8 @@ def test_icc_is_one_when_every_cluster_is_constant():
 def test_design_effect_is_the_variance_of_a_mean_under_equal_correlation_within_clusters(sizes,
                                                                                          rho):
     """w' S w / (sigma^2 / N), S = sigma^2 ((1 - rho) I + rho within-cluster blocks), w = 1/N:
-    the variance ratio computed with numpy's linear algebra."""
-    n = sum(sizes)
-    blocks = np.zeros((n, n))
-    start = 0
-    for m in sizes:
-        blocks[start:start + m, start:start + m] = 1.0
-        start += m
-    cov = (1 - rho) * np.eye(n) + rho * blocks
-    w = np.full(n, 1.0 / n)
-    assert design_effect(rho, sizes) == pytest.approx(float(w @ cov @ w) * n, rel=1e-12)
+    the variance ratio computed with numpy's linear algebra (`_variance_ratio`)."""
+    assert design_effect(rho, sizes) == pytest.approx(_variance_ratio(rho, sizes), rel=1e-12)
     if len(set(sizes)) == 1:
         assert design_effect(rho, sizes) == pytest.approx(1 + (sizes[0] - 1) * rho, rel=1e-12)
 
