@@ -359,6 +359,19 @@ def with_coverage_check(result: AuditResult, policy: Policy,
     return dataclasses.replace(result, decision=decision)
 
 
+RESERVED_STREAMS = frozenset({7, 8, 9})  # permutation tests, coverage check, cluster bootstrap
+
+
+def comparison_streams(seed: int, count: int) -> list[np.random.SeedSequence]:
+    """The random streams of an omnibus audit's bootstrap (the first) and of its pairwise
+    comparisons: SeedSequence(seed, spawn_key=(i,)) for i = 0, 1, 2, ..., skipping the keys
+    that name other streams of the same seed (RESERVED_STREAMS), so that no pair draws the
+    very numbers of the permutation tests, the coverage check or the cluster bootstrap. Up to
+    seven streams (four groups or conditions) these are `SeedSequence(seed).spawn(count)`."""
+    keys = [k for k in range(count + len(RESERVED_STREAMS)) if k not in RESERVED_STREAMS][:count]
+    return [np.random.SeedSequence(seed, spawn_key=(k,)) for k in keys]
+
+
 def check_settings(level: float, resamples: int, seed: int) -> tuple[float, int]:
     level = float(level)
     if not 0.5 <= level < 1.0:
@@ -600,7 +613,7 @@ def _audit_k_groups(design: Groups, settings: RunSettings):
         settings.scope)
     groups = design.values
     pairs = list(itertools.combinations(range(len(groups)), 2))
-    rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    rngs = [np.random.default_rng(s) for s in comparison_streams(seed, 1 + len(pairs))]
     first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_independent_effects()
     effects, notes, loo = _estimate(specs, groups, settings, rngs[0], progress, Design.K_INDEPENDENT)
@@ -659,7 +672,7 @@ def _audit_repeated(design: Repeated, outcome, settings: RunSettings):
         return _decided(result, (x,), policy, digits, work=_work(
             specs, loo, units, settings, lambda: np.random.default_rng(seed)))
     pairs = list(itertools.combinations(range(x.shape[1]), 2))
-    rngs = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(1 + len(pairs))]
+    rngs = [np.random.default_rng(s) for s in comparison_streams(seed, 1 + len(pairs))]
     first = np.random.SeedSequence(seed).spawn(1)[0]
     specs = k_repeated_effects()
     effects, notes, loo = _estimate(specs, (x,), settings, rngs[0], progress, Design.K_REPEATED)
