@@ -221,7 +221,7 @@ def difference_design_effect(effects: Sequence[float | None],
 def _members(cluster_values: Sequence[np.ndarray]) -> tuple[np.ndarray, np.ndarray, list]:
     """Flat values of one group in cluster order, each cluster's size, and each cluster's
     positions in the flat array."""
-    flat = np.concatenate([np.asarray(v, dtype=float) for v in cluster_values])
+    flat = pooled(cluster_values)
     sizes = np.array([len(v) for v in cluster_values], dtype=np.int64)
     starts = np.concatenate([[0], np.cumsum(sizes)[:-1]])
     return flat, sizes, [np.arange(s, s + k) for s, k in zip(starts, sizes)]
@@ -275,15 +275,19 @@ def cluster_replicates(specs, clusters_a: Sequence[np.ndarray], clusters_b: Sequ
     return out
 
 
+def pooled(clusters, leave_out: int | None = None) -> np.ndarray:
+    """A group's cases, cluster after cluster, without cluster `leave_out` when given."""
+    return np.concatenate([np.asarray(v, dtype=float)
+                           for i, v in enumerate(clusters) if i != leave_out])
+
+
 def leave_one_cluster_out(spec, clusters_a, clusters_b) -> tuple[np.ndarray, np.ndarray]:
     """The index with each cluster of A left out in turn, then each cluster of B (the
     jackknife over clusters that gives the BCa acceleration)."""
     def without(clusters, j):
-        return np.concatenate([np.asarray(v, dtype=float)
-                               for i, v in enumerate(clusters) if i != j])[None, :]
+        return pooled(clusters, j)[None, :]
 
-    a = np.concatenate([np.asarray(v, dtype=float) for v in clusters_a])[None, :]
-    b = np.concatenate([np.asarray(v, dtype=float) for v in clusters_b])[None, :]
+    a, b = pooled(clusters_a)[None, :], pooled(clusters_b)[None, :]
     with np.errstate(all="ignore"):
         loo_a = np.array([spec.values(without(clusters_a, j), b)[0]
                           for j in range(len(clusters_a))], dtype=float)
@@ -307,8 +311,7 @@ def cluster_bootstrap(specs, estimates: dict[str, float | None], clusters_a, clu
                      for s in specs)
     defined = [s for s in specs if estimates.get(s.name) is not None]
     replicates = cluster_replicates(defined, clusters_a, clusters_b, resamples, rng, progress)
-    a = np.concatenate([np.asarray(v, dtype=float) for v in clusters_a])
-    b = np.concatenate([np.asarray(v, dtype=float) for v in clusters_b])
+    a, b = pooled(clusters_a), pooled(clusters_b)
     out = []
     for spec in specs:
         theta = estimates.get(spec.name)
@@ -348,7 +351,7 @@ def clustering(column: str, group_labels: Sequence[str], values: Sequence[np.nda
     the registry's two-group `specs` and their estimates on the data; the bootstrap draws from
     SeedSequence(seed, spawn_key=(CLUSTER_STREAM,))."""
     names, parts = zip(*(by_cluster(v, labs) for v, labs in zip(values, cluster_labels)))
-    y = np.concatenate([np.asarray(v, dtype=float) for v in values])
+    y = pooled(values)
     icc = intraclass_correlation(
         y, [c for labs in cluster_labels for c in labs],
         [g for g, v in zip(group_labels, values) for _ in range(len(v))])

@@ -119,11 +119,9 @@ def is_missing(label: str) -> bool:
     return label.lower() in MISSING_MARKERS
 
 
-_is_missing = is_missing
-
 
 def ordered_levels(labels: list[str]) -> list[str]:
-    return list(dict.fromkeys(lab for lab in labels if not _is_missing(lab)))
+    return list(dict.fromkeys(lab for lab in labels if not is_missing(lab)))
 
 
 def _account(table: Table, used: int, excluded: list[Exclusion], not_selected,
@@ -152,7 +150,7 @@ def label_notes(raw_labels, what: str = "group") -> tuple[str, ...]:
     by_case: dict[str, set[str]] = {}
     for raw in raw_labels:
         lab = raw.strip()
-        if lab and not _is_missing(lab):
+        if lab and not is_missing(lab):
             by_case.setdefault(lab.lower(), set()).add(lab)
     for variants in by_case.values():
         if len(variants) > 1:
@@ -193,7 +191,7 @@ def independent_groups(table: Table, outcome: str, group: str,
                 missing[index[lab]] += 1
                 first_reason.setdefault(index[lab], f"line {lines[i]}: {table.shape_problems[i]}")
             continue
-        if _is_missing(lab):
+        if is_missing(lab):
             excluded.append(Exclusion(int(lines[i]), f"{group} is empty" if not lab
                                       else f"{group} is missing ('{lab}')"))
             continue
@@ -251,7 +249,7 @@ def choose_levels(levels: list[str], chosen: list[str] | None, path: str, column
     for lab in chosen:
         if lab not in levels:
             marker = (f"; '{lab}' is read as a missing-value marker, so its rows are excluded"
-                      " (rename the level in the file)" if _is_missing(lab) else "")
+                      " (rename the level in the file)" if is_missing(lab) else "")
             raise DesignError(
                 f"{path}: column '{column}' has no level '{lab}'; {suggest(lab, levels, 'levels')}"
                 f"{marker}"
@@ -283,7 +281,7 @@ def wide_repeated(table: Table, columns: list[str], subject: str | None = None) 
         if i in table.shape_problems:
             excluded.append(Exclusion(line, table.shape_problems[i]))
             continue
-        if subject and _is_missing(ids[i]):
+        if subject and is_missing(ids[i]):
             excluded.append(Exclusion(line, f"{subject} (participant id) is empty"))
             continue
         problems = [reasons[i] for _, reasons in parsed if reasons[i] is not None]
@@ -336,14 +334,14 @@ def long_repeated(table: Table, outcome: str, group: str, subject: str,
         if i in table.shape_problems:
             excluded.append(Exclusion(line, table.shape_problems[i]))
             continue
-        if _is_missing(lab):
+        if is_missing(lab):
             excluded.append(Exclusion(line, f"{group} is empty" if not lab
                                       else f"{group} is missing ('{lab}')"))
             continue
         if lab not in index:
             not_selected[lab] += 1
             continue
-        if _is_missing(ids[i]):
+        if is_missing(ids[i]):
             excluded.append(Exclusion(line, f"{subject} (participant id) is empty"))
             continue
         key = (ids[i], index[lab])
